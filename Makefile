@@ -1,0 +1,38 @@
+# Two entry points for a fresh machine: `make demo` and `make test`.
+# Both create .venv on first use and install the project with its test extra.
+PYTHON ?= python3
+VENV := .venv
+PY := $(VENV)/bin/python
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test lint format bench screenshot clean
+
+$(STAMP): pyproject.toml
+	$(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(VENV)/bin/margin-reviewer demo
+
+lint: $(STAMP)
+	$(VENV)/bin/ruff check .
+	$(VENV)/bin/ruff format --check .
+	$(VENV)/bin/lint-imports
+
+test: lint
+	QT_QPA_PLATFORM=offscreen $(PY) -m pytest -q
+
+format: $(STAMP)
+	$(VENV)/bin/ruff format .
+	$(VENV)/bin/ruff check --fix .
+
+bench: $(STAMP)
+	QT_QPA_PLATFORM=offscreen $(PY) -m tests.benchmarks.run_all
+
+screenshot: $(STAMP)
+	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png
+
+clean:
+	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis

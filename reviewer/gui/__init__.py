@@ -1,0 +1,1 @@
+"""The review window: a thin PySide6 and pyqtgraph layer over reviewer.core."""
