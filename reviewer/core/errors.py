@@ -29,3 +29,7 @@ class SessionLockedError(SessionError):
 
 class ExportError(ReviewerError):
     """An export could not be written; nothing partial was left behind."""
+
+
+class Cancelled(ReviewerError):
+    """Long work was cancelled by the user; whatever was in place before stays."""

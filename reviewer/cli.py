@@ -1,0 +1,186 @@
+"""The ``margin-reviewer`` command. Calls reviewer.core only; the window is imported lazily."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from collections.abc import Sequence
+from pathlib import Path
+
+from reviewer import __version__
+
+DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse, but usage errors also follow the one-line ``error:`` rule and exit 2."""
+
+    def error(self, message: str) -> None:  # type: ignore[override]
+        sys.stderr.write(f"error: {message}\n")
+        raise SystemExit(2)
+
+
+def _gamma(text: str) -> float | str:
+    if text == "scale":
+        return text
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"gamma must be a number or 'scale', got {text!r}"
+        ) from None
+
+
+def _positive_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, got {text!r}") from None
+    return value
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(
+        prog="margin-reviewer",
+        description="Rank the rows of a labelled table by soft-margin slack and review them.",
+    )
+    parser.add_argument("--version", action="version", version=f"margin-reviewer {__version__}")
+    sub = parser.add_subparsers(dest="command", parser_class=_Parser)
+
+    sub.add_parser("demo", help="open the window on the bundled demo data")
+
+    p_open = sub.add_parser("open", help="open the window on a data file")
+    p_open.add_argument("data", nargs="?", help="CSV, TSV, Parquet or Excel file")
+    p_open.add_argument("--label", help="the label column")
+    p_open.add_argument("--id", dest="id_column", help="the id column")
+    p_open.add_argument("--session", help="session file (default: beside the data file)")
+
+    p_scan = sub.add_parser("scan", help="rank rows by slack and write one row per input row")
+    p_scan.add_argument("data")
+    p_scan.add_argument("--label", required=True, help="the label column")
+    p_scan.add_argument("--id", dest="id_column", help="the id column")
+    p_scan.add_argument("--kernel", default="auto", choices=["auto", "linear", "rbf", "poly"])
+    p_scan.add_argument(
+        "--C", dest="C", type=_positive_float, default=None, help="penalty C (default: auto)"
+    )
+    p_scan.add_argument("--gamma", type=_gamma, default="scale")
+    p_scan.add_argument("--degree", type=int, default=3, help="poly kernel degree")
+    p_scan.add_argument("--class-weight", choices=["none", "balanced"], default="none")
+    p_scan.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
+    p_scan.add_argument("--score", choices=["heldout", "training"], default="heldout")
+    p_scan.add_argument("--seed", type=int, default=0)
+    p_scan.add_argument("--out", help="output CSV (default: standard output)")
+
+    p_export = sub.add_parser("export", help="write the cleaned table, audit log and summary")
+    p_export.add_argument("session")
+    p_export.add_argument("--out", required=True, help="cleaned table, in the source's format")
+    p_export.add_argument("--audit", help="audit log (.csv or .jsonl)")
+    p_export.add_argument("--report", help="HTML summary")
+    p_export.add_argument(
+        "--keep-excluded", action="store_true", help="keep excluded rows, flagged"
+    )
+    p_export.add_argument("--overwrite", action="store_true", help="replace existing output files")
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    from reviewer.core.errors import ReviewerError
+
+    try:
+        if args.command == "scan":
+            return _scan(args)
+        if args.command == "export":
+            return _export(args)
+        if args.command in ("demo", "open", None):
+            return _window(args)
+    except ReviewerError as exc:
+        sys.stderr.write(f"error: {_one_line(str(exc))}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write("error: interrupted\n")
+        return 130
+    except MemoryError:
+        sys.stderr.write("error: out of memory while working on the table\n")
+        return 2
+    parser.print_help()
+    return 2
+
+
+def _one_line(text: str) -> str:
+    return " ".join(text.split())
+
+
+def _scan(args: argparse.Namespace) -> int:
+    from reviewer.core.engine import FitSettings
+    from reviewer.core.loading import load_table
+    from reviewer.core.scan import scan_table
+
+    started = time.perf_counter()
+    settings = FitSettings(
+        kernel=args.kernel,
+        C=args.C,
+        gamma=args.gamma,
+        degree=args.degree,
+        class_weight=None if args.class_weight == "none" else "balanced",
+        folds=args.folds,
+        seed=args.seed,
+        score=args.score,
+    ).validate()
+    loaded = load_table(args.data)
+    outcome = scan_table(loaded, args.label, id_column=args.id_column, settings=settings)
+    table = outcome.table
+    if args.out:
+        Path(args.out).write_text(table.to_csv(index=False), encoding="utf-8")
+    else:
+        table.to_csv(sys.stdout, index=False)
+    s = outcome.fit.summary
+    used = outcome.fit.settings
+    zones = ", ".join(f"{k} {v}" for k, v in s["zone_counts"].items())
+    gamma = f", gamma={used['gamma_value']:.4g}" if used["kernel"] != "linear" else ""
+    lines = [
+        f"rows: {s['n_rows']} ({s['n_fitted']} fitted, {s['n_unlabelled']} unlabelled)",
+        f"classes: {', '.join(f'{c} ({n})' for c, n in s['class_counts'].items())}",
+        f"zones: {zones}",
+        f"settings: kernel={used['kernel']}, C={float(used['C']):g}{gamma}, folds={used['folds']}, "
+        f"score={used['score']}",
+        *[f"note: {n}" for n in s["notes"]],
+        f"time: {time.perf_counter() - started:.2f} s",
+    ]
+    sys.stderr.write("\n".join(lines) + "\n")
+    return 0
+
+
+def _export(args: argparse.Namespace) -> int:
+    from reviewer.core.session import export_session
+
+    written = export_session(
+        Path(args.session),
+        out=Path(args.out),
+        audit=Path(args.audit) if args.audit else None,
+        report=Path(args.report) if args.report else None,
+        keep_excluded=args.keep_excluded,
+        overwrite=args.overwrite,
+    )
+    for path in written:
+        sys.stderr.write(f"wrote {path}\n")
+    return 0
+
+
+def _window(args: argparse.Namespace) -> int:
+    try:
+        from reviewer.gui.app import run_window
+    except ImportError as exc:  # Qt missing or broken: say so in one line
+        sys.stderr.write(f"error: the window cannot start ({exc})\n")
+        return 2
+    if args.command == "demo":
+        return run_window(
+            DEMO_DIR / "coffee_lots.csv", label="grade", id_column="lot_id", demo=True
+        )
+    if args.command == "open" and args.data:
+        return run_window(
+            Path(args.data), label=args.label, id_column=args.id_column, session=args.session
+        )
+    return run_window(None)

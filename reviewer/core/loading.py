@@ -1,0 +1,292 @@
+"""Read a labelled table from delimited text, Parquet or Excel, and fingerprint the source.
+
+Every failure becomes an :class:`InputError` whose message names the file and the problem.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import os
+import zipfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from reviewer.core.errors import InputError
+from reviewer.core.progress import ProgressFn, Reporter
+
+DELIMITED_SUFFIXES = {".csv", ".tsv", ".tab", ".txt", ".dat", ".psv"}
+PARQUET_SUFFIXES = {".parquet", ".pq"}
+EXCEL_SUFFIXES = {".xlsx", ".xlsm"}
+# Extra spellings of "missing" seen in exported spreadsheets and survey tools (common practice).
+MISSING_MARKERS = ["?", "null", "NULL", "Null", "NaN", "nan", "NA", "N/A", "n/a", "-", ""]
+DELIMITER_CANDIDATES = [",", ";", "\t", "|"]
+CHUNK_ROWS = 250_000
+
+
+@dataclass(frozen=True)
+class SourceInfo:
+    """Where a table came from and how it was encoded, enough to write it back alike."""
+
+    path: Path
+    kind: str  # "delimited" | "parquet" | "excel"
+    sha256: str
+    delimiter: str | None
+    encoding: str | None
+    sheet: str | None
+    n_rows: int
+    columns: tuple[str, ...]
+
+
+@dataclass
+class LoadedTable:
+    frame: pd.DataFrame
+    source: SourceInfo
+
+
+def sha256_of(path: str | os.PathLike[str]) -> str:
+    """SHA-256 of a file's bytes, read in blocks."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def load_table(
+    path: str | os.PathLike[str],
+    *,
+    sheet: str | None = None,
+    progress: ProgressFn | None = None,
+    cancel=None,
+) -> LoadedTable:
+    """Load ``path`` as a table. Raises InputError for anything that is not a usable table."""
+    report = Reporter(progress, cancel)
+    p = Path(path).expanduser()
+    if not p.exists():
+        raise InputError(f"{p}: file not found")
+    if p.is_dir():
+        raise InputError(f"{p}: is a folder, not a data file")
+    try:
+        raw = p.read_bytes()
+    except OSError as exc:
+        raise InputError(f"{p}: cannot be read ({exc.strerror or exc})") from exc
+    report(0.05, "fingerprinting")
+    digest = hashlib.sha256(raw).hexdigest()
+    if not raw.strip():
+        raise InputError(f"{p}: the file is empty")
+    kind = _detect_kind(p, raw)
+    if kind == "parquet":
+        frame = _read_parquet(p, raw)
+        delimiter = encoding = used_sheet = None
+    elif kind == "excel":
+        frame, used_sheet = _read_excel(p, raw, sheet)
+        delimiter = encoding = None
+    else:
+        encoding = detect_encoding(raw, p)
+        text_sample = raw[:200_000].decode(encoding, errors="replace")
+        delimiter = detect_delimiter(text_sample, p)
+        frame = _read_delimited(p, raw, encoding, delimiter, report.slice(0.1, 1.0))
+        used_sheet = None
+    frame = _tidy_columns(frame, p)
+    if frame.shape[1] == 0:
+        raise InputError(f"{p}: no columns found; is this a table?")
+    if len(frame) == 0:
+        raise InputError(f"{p}: has a header but no data rows")
+    report(1.0, f"loaded {len(frame):,} rows")
+    info = SourceInfo(
+        path=p.resolve(),
+        kind=kind,
+        sha256=digest,
+        delimiter=delimiter,
+        encoding=encoding,
+        sheet=used_sheet,
+        n_rows=len(frame),
+        columns=tuple(frame.columns),
+    )
+    return LoadedTable(frame=frame, source=info)
+
+
+def _detect_kind(p: Path, raw: bytes) -> str:
+    suffix = p.suffix.lower()
+    is_parquet = raw[:4] == b"PAR1"
+    is_zip = raw[:4] == b"PK\x03\x04"
+    if suffix in PARQUET_SUFFIXES:
+        if not is_parquet:
+            raise InputError(f"{p}: named .parquet but is not a Parquet file (bad magic bytes)")
+        return "parquet"
+    if suffix in EXCEL_SUFFIXES:
+        if not is_zip:
+            raise InputError(f"{p}: named {suffix} but is not an Excel workbook (not a zip)")
+        return "excel"
+    if suffix == ".xls":
+        raise InputError(f"{p}: old .xls workbooks are not supported; save it as .xlsx or CSV")
+    if is_parquet:
+        return "parquet"
+    if is_zip:
+        return "excel"
+    return "delimited"
+
+
+def detect_encoding(raw: bytes, p: Path | str = "<data>") -> str:
+    """UTF-8 (with or without BOM), UTF-16 (with BOM), else Latin-1."""
+    if raw.startswith(b"\xef\xbb\xbf"):
+        return "utf-8-sig"
+    if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
+        return "utf-16"
+    if b"\x00" in raw[:65536]:
+        raise InputError(f"{p}: looks like a binary file (NUL bytes), not a delimited table")
+    try:
+        raw.decode("utf-8")
+        return "utf-8"
+    except UnicodeDecodeError:
+        pass
+    # Latin-1 maps every byte, so it always decodes; control bytes mean it is not text.
+    sample = raw[:65536]
+    controls = sum(sample.count(bytes([c])) for c in range(0, 32) if c not in (9, 10, 13))
+    if controls > max(8, len(sample) // 200):
+        raise InputError(f"{p}: looks like a binary file, not a delimited table")
+    return "latin-1"
+
+
+def detect_delimiter(text: str, p: Path | str = "<data>") -> str:
+    """Pick the delimiter among , ; tab | that splits the first lines most consistently."""
+    suffix = Path(str(p)).suffix.lower()
+    if suffix in {".tsv", ".tab"}:
+        return "\t"
+    lines = [line for line in text.splitlines()[:50] if line.strip()]
+    if not lines:
+        raise InputError(f"{p}: no text lines found")
+    try:
+        dialect = csv.Sniffer().sniff(
+            "\n".join(lines[:20]), delimiters="".join(DELIMITER_CANDIDATES)
+        )
+        if dialect.delimiter in DELIMITER_CANDIDATES:
+            return dialect.delimiter
+    except csv.Error:
+        pass
+    best, best_score = ",", -1.0
+    for cand in DELIMITER_CANDIDATES:
+        counts = [line.count(cand) for line in lines]
+        if counts[0] == 0:
+            continue
+        same = sum(c == counts[0] for c in counts) / len(counts)
+        score = same * 10 + min(counts[0], 50) / 50
+        if score > best_score:
+            best, best_score = cand, score
+    return best
+
+
+def _read_delimited(p: Path, raw: bytes, encoding: str, delimiter: str, report: Reporter):
+    total_lines = max(raw.count(b"\n"), 1)
+    options = dict(
+        sep=delimiter,
+        encoding=encoding,
+        na_values=MISSING_MARKERS,
+        keep_default_na=True,
+        skipinitialspace=False,
+        engine="c",
+        chunksize=CHUNK_ROWS,
+        low_memory=False,
+    )
+    chunks = []
+    read = 0
+    try:
+        with pd.read_csv(io.BytesIO(raw), **options) as reader:
+            for chunk in reader:
+                chunks.append(chunk)
+                read += len(chunk)
+                report(min(read / total_lines, 0.99), f"reading rows: {read:,}")
+    except pd.errors.EmptyDataError as exc:
+        raise InputError(f"{p}: no columns found; is this a table?") from exc
+    except pd.errors.ParserError as exc:
+        raise InputError(f"{p}: not a well-formed table ({_first_line(exc)})") from exc
+    except (UnicodeDecodeError, UnicodeError) as exc:
+        raise InputError(f"{p}: text is not valid {encoding} ({_first_line(exc)})") from exc
+    except (ValueError, OverflowError, MemoryError) as exc:
+        raise InputError(f"{p}: cannot be read as a table ({_first_line(exc)})") from exc
+    if not chunks:
+        raise InputError(f"{p}: has a header but no data rows")
+    frame = chunks[0] if len(chunks) == 1 else pd.concat(chunks, ignore_index=True)
+    return frame.reset_index(drop=True)
+
+
+def _read_parquet(p: Path, raw: bytes) -> pd.DataFrame:
+    try:
+        return pd.read_parquet(io.BytesIO(raw)).reset_index(drop=True)
+    except Exception as exc:  # pyarrow raises several unrelated types for damaged files
+        raise InputError(f"{p}: damaged or unreadable Parquet file ({_first_line(exc)})") from exc
+
+
+def _read_excel(p: Path, raw: bytes, sheet: str | None) -> tuple[pd.DataFrame, str]:
+    try:
+        book = pd.ExcelFile(io.BytesIO(raw), engine="openpyxl")
+    except (zipfile.BadZipFile, KeyError, ValueError, OSError) as exc:
+        raise InputError(f"{p}: damaged or unreadable Excel workbook ({_first_line(exc)})") from exc
+    except Exception as exc:  # openpyxl raises its own types for malformed parts
+        raise InputError(f"{p}: damaged or unreadable Excel workbook ({_first_line(exc)})") from exc
+    names = [str(n) for n in book.sheet_names]
+    if not names:
+        raise InputError(f"{p}: the workbook has no sheets")
+    if sheet is not None and sheet not in names:
+        raise InputError(f"{p}: no sheet named {sheet!r}; sheets are {', '.join(names)}")
+    chosen = sheet or names[0]
+    try:
+        frame = book.parse(chosen, na_values=MISSING_MARKERS)
+    except Exception as exc:
+        raise InputError(f"{p}: sheet {chosen!r} cannot be read ({_first_line(exc)})") from exc
+    return frame.reset_index(drop=True), chosen
+
+
+def _tidy_columns(frame: pd.DataFrame, p: Path) -> pd.DataFrame:
+    """Give every column a unique, non-empty text name (pandas may leave ints or blanks)."""
+    names: list[str] = []
+    seen: set[str] = set()
+    for i, col in enumerate(frame.columns):
+        name = str(col).strip()
+        if not name or name.lower().startswith("unnamed:"):
+            name = f"column_{i + 1}"
+        base, k = name, 2
+        while name in seen:
+            name = f"{base}_{k}"
+            k += 1
+        seen.add(name)
+        names.append(name)
+    frame.columns = names
+    return frame
+
+
+def _first_line(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return text[0][:200] if text else type(exc).__name__
+
+
+def label_strings(values: pd.Series) -> np.ndarray:
+    """A label column as text, None where missing; whole-number floats print as integers."""
+    out = np.empty(len(values), dtype=object)
+    series = values.reset_index(drop=True)
+    missing = series.isna().to_numpy()
+    if pd.api.types.is_float_dtype(series.dtype):
+        arr = series.to_numpy(dtype=float, na_value=np.nan)
+        finite = np.isfinite(arr)
+        whole = finite & (np.floor(arr) == arr)
+        for i in range(len(arr)):
+            if missing[i]:
+                out[i] = None
+            elif whole[i]:
+                out[i] = str(int(arr[i]))
+            else:
+                out[i] = repr(float(arr[i]))
+        return out
+    texts = series.astype(object).to_numpy()
+    for i in range(len(texts)):
+        if missing[i]:
+            out[i] = None
+        else:
+            s = str(texts[i]).strip()
+            out[i] = s if s else None
+    return out
