@@ -67,6 +67,8 @@ class _FdStream(io.RawIOBase):
         return True
 
     def write(self, data) -> int:  # type: ignore[override]
+        if self._fd < 0:
+            return len(data)  # see _ignore_after_release
         view = memoryview(data).cast("B")
         done = 0
         while done < len(view):
@@ -79,12 +81,18 @@ class _FdStream(io.RawIOBase):
         return len(chunk)
 
     def seek(self, offset: int, whence: int = io.SEEK_SET) -> int:
+        if self._fd < 0:
+            return 0
         return os.lseek(self._fd, offset, whence)
 
     def tell(self) -> int:
+        if self._fd < 0:
+            return 0
         return os.lseek(self._fd, 0, io.SEEK_CUR)
 
     def truncate(self, size: int | None = None) -> int:
+        if self._fd < 0:
+            return 0
         size = self.tell() if size is None else size
         os.ftruncate(self._fd, size)
         return size
@@ -92,11 +100,17 @@ class _FdStream(io.RawIOBase):
     def fileno(self) -> int:
         return self._fd
 
+    def close(self) -> None:
+        # Writers close the stream they were given (pandas does); the descriptor must stay
+        # open for fsync, and release() below ends its use.
+        pass
+
     def release(self) -> None:
-        # atomic_write owns and closes the descriptor; forget it so a late write from a
-        # writer that kept a reference fails instead of landing in a reused descriptor.
+        # atomic_write owns and closes the descriptor. A writer that failed half way may
+        # still hold this stream and flush it when collected (zipfile does); those late
+        # calls are dropped so they neither land in a reused descriptor nor print errors.
+        # The outcome is already decided by then: the temporary file is gone.
         self._fd = -1
-        self.close()
 
 
 def same_file(a: Path, b: Path) -> bool:

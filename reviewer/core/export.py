@@ -513,7 +513,7 @@ def _cleaned_excel(
     try:
         with pd.ExcelFile(where, engine="openpyxl") as book:
             sheet = source.sheet if source.sheet is not None else book.sheet_names[0]
-            frame = book.parse(sheet_name=sheet)
+            frame = pd.read_excel(book, sheet_name=sheet)
     except Exception as exc:
         raise ExportError(f"Cannot read the source {where}: {exc}") from exc
     if len(frame) != source.n_rows or label_column not in frame.columns:
