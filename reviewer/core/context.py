@@ -47,11 +47,16 @@ class ClassNorms:
     levels: dict[str, dict[str, dict[str, float]]]  # column -> class -> level -> share
 
 
-def class_norms(frame: pd.DataFrame, roles: ColumnRoles, labels: np.ndarray, use: np.ndarray) -> ClassNorms:
+def class_norms(
+    frame: pd.DataFrame, roles: ColumnRoles, labels: np.ndarray, use: np.ndarray
+) -> ClassNorms:
     """Typical values of each class, from rows in ``use`` (labelled and not excluded)."""
     labs = np.asarray(labels, dtype=object)
     classes = sorted({str(v) for v in labs[use] if v is not None})
-    num = [pd.to_numeric(frame[c], errors="coerce").to_numpy(dtype=float, na_value=np.nan) for c in roles.numeric]
+    num = [
+        pd.to_numeric(frame[c], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        for c in roles.numeric
+    ]
     values = np.column_stack(num) if num else np.empty((len(frame), 0))
     values = np.where(np.isfinite(values), values, np.nan)
     med = np.full((len(classes), values.shape[1]), np.nan)
@@ -70,7 +75,9 @@ def class_norms(frame: pd.DataFrame, roles: ColumnRoles, labels: np.ndarray, use
                     med[i] = np.nanmedian(block, axis=0)
                     spread[i] = np.nanstd(block, axis=0)
         for col in roles.categorical:
-            counts = frame.loc[rows, col].astype(object).where(frame.loc[rows, col].notna(), "(missing)")
+            counts = (
+                frame.loc[rows, col].astype(object).where(frame.loc[rows, col].notna(), "(missing)")
+            )
             shares = counts.astype(str).value_counts(normalize=True)
             levels[col][cls] = {str(k): float(v) for k, v in shares.items()}
     return ClassNorms(classes, list(roles.numeric), med, spread, levels)
@@ -91,7 +98,11 @@ def feature_profile(
         value = pd.to_numeric(pd.Series([frame.at[row, col]]), errors="coerce").iloc[0]
         typical = norms.median[ci, j] if ci is not None else np.nan
         sd = norms.spread[ci, j] if ci is not None else np.nan
-        dist = abs(value - typical) / sd if np.isfinite(value) and np.isfinite(sd) and sd > 0 else np.nan
+        dist = (
+            abs(value - typical) / sd
+            if np.isfinite(value) and np.isfinite(sd) and sd > 0
+            else np.nan
+        )
         out.append(
             {
                 "feature": col,
@@ -118,7 +129,9 @@ def feature_profile(
                 "unusual": bool(shares) and share < 0.05,
             }
         )
-    return pd.DataFrame(out, columns=["feature", "kind", "value", "class_typical", "distance", "unusual"])
+    return pd.DataFrame(
+        out, columns=["feature", "kind", "value", "class_typical", "distance", "unusual"]
+    )
 
 
 def projection_2d(X: np.ndarray, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
@@ -129,6 +142,10 @@ def projection_2d(X: np.ndarray, seed: int = 0) -> tuple[np.ndarray, np.ndarray]
     if X.shape[1] == 1:
         return np.column_stack([X[:, 0], np.zeros(len(X))]), np.array([1.0, 0.0])
     rng = np.random.default_rng(seed)
-    sample = X if len(X) <= PROJECTION_FIT_ROWS else X[rng.choice(len(X), PROJECTION_FIT_ROWS, replace=False)]
+    sample = (
+        X
+        if len(X) <= PROJECTION_FIT_ROWS
+        else X[rng.choice(len(X), PROJECTION_FIT_ROWS, replace=False)]
+    )
     pca = PCA(n_components=2, random_state=seed).fit(sample)
     return pca.transform(X), pca.explained_variance_ratio_

@@ -34,9 +34,15 @@ from reviewer.core.engine import FitSettings
 from reviewer.core.errors import InputError, SessionError, SourceChangedError
 from reviewer.core.features import feature_matrix
 from reviewer.core.fitting import ROW_COLUMNS, FitResult, fit_margins
-from reviewer.core.loading import LoadedTable, load_table, label_strings, sha256_of
+from reviewer.core.loading import LoadedTable, label_strings, load_table, sha256_of
 from reviewer.core.progress import ProgressFn, Reporter
-from reviewer.core.roles import ColumnRoles, guess_id_column, guess_label_column, infer_kind, infer_roles
+from reviewer.core.roles import (
+    ColumnRoles,
+    guess_id_column,
+    guess_label_column,
+    infer_kind,
+    infer_roles,
+)
 from reviewer.core.scan import row_ids
 from reviewer.core.sessionfile import SessionFile
 
@@ -120,7 +126,11 @@ class ReviewSession:
         self._where = {str(v): i for i, v in enumerate(self.ids)} if self._by_id else {}
         # Ids the log names that the table no longer has become "ghost" rows after the
         # table, so every event (and every undo of it) still replays; they are never shown.
-        ghosts = sorted({rid for e in events for rid in e.row_ids} - set(self._where)) if self._by_id else []
+        ghosts = (
+            sorted({rid for e in events for rid in e.row_ids} - set(self._where))
+            if self._by_id
+            else []
+        )
         for j, rid in enumerate(ghosts):
             self._where[rid] = len(self.ids) + j
         if ghosts:
@@ -143,7 +153,9 @@ class ReviewSession:
 
     # ---- opening ---------------------------------------------------------------------------
     @staticmethod
-    def preview(data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None) -> TablePreview:
+    def preview(
+        data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None
+    ) -> TablePreview:
         """Load a file and guess its roles, for the column-roles dialog."""
         loaded = load_table(data_path, progress=progress)
         frame = loaded.frame
@@ -156,10 +168,16 @@ class ReviewSession:
             try:
                 with SessionFile.open(path, read_only=True) as f:
                     meta = f.meta
-                remembered = {"label": meta.get("label_column"), "id": meta.get("id_column"), "roles": meta.get("roles")}
+                remembered = {
+                    "label": meta.get("label_column"),
+                    "id": meta.get("id_column"),
+                    "roles": meta.get("roles"),
+                }
             except SessionError:
                 remembered = None
-        return TablePreview(loaded.source, frame.head(rows), list(frame.columns), label, ident, kinds, remembered)
+        return TablePreview(
+            loaded.source, frame.head(rows), list(frame.columns), label, ident, kinds, remembered
+        )
 
     @classmethod
     def open(
@@ -200,7 +218,9 @@ class ReviewSession:
                         "choose another session file to review a different column"
                     )
                 roles = ColumnRoles.from_dict(meta["roles"]) if meta.get("roles") else None
-                if roles is None or any(c not in loaded.frame.columns for c in [roles.label, *roles.features]):
+                if roles is None or any(
+                    c not in loaded.frame.columns for c in [roles.label, *roles.features]
+                ):
                     roles = infer_roles(loaded.frame, label_col, id_col, overrides)
                 settings = FitSettings.from_dict(meta.get("settings") or {})
                 changed = meta.get("source_sha256") != src.sha256
@@ -208,12 +228,17 @@ class ReviewSession:
                     raise SourceChangedError(
                         f"{src.path} changed since session {path} began (SHA-256 differs). "
                         "Open it read-only to look, or re-attach by the id column"
-                        + (f" {id_col!r}" if id_col else " (this table has none, so only read-only)")
+                        + (
+                            f" {id_col!r}"
+                            if id_col
+                            else " (this table has none, so only read-only)"
+                        )
                     )
                 if changed and reattach:
                     if not id_col:
                         raise SourceChangedError(
-                            f"{src.path} changed and session {path} has no id column to re-attach by; "
+                            f"{src.path} changed and session {path} has no id column "
+                            "to re-attach by; "
                             "open it read-only instead"
                         )
                     if file.read_only:
@@ -250,7 +275,9 @@ class ReviewSession:
         try:
             report(0.65, "building features")
             X, names = feature_matrix(loaded.frame, roles)
-            session = cls(loaded, roles, file, reviewer or default_reviewer(), settings, X, names, warnings)
+            session = cls(
+                loaded, roles, file, reviewer or default_reviewer(), settings, X, names, warnings
+            )
         except BaseException:
             file.close()
             raise
@@ -359,7 +386,9 @@ class ReviewSession:
     def keep(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
         return self._edit(editlog.KEEP, rows, reason=reason, note=note)
 
-    def relabel(self, rows: Iterable[int], label: str, *, reason: str = "", note: str = "") -> Event:
+    def relabel(
+        self, rows: Iterable[int], label: str, *, reason: str = "", note: str = ""
+    ) -> Event:
         label = str(label).strip()
         if not label:
             raise SessionError("a new label cannot be empty")
@@ -374,7 +403,9 @@ class ReviewSession:
     def add_note(self, rows: Iterable[int], text: str) -> Event:
         return self._edit(editlog.NOTE, rows, note=text)
 
-    def relabel_to_suggestion(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> list[Event]:
+    def relabel_to_suggestion(
+        self, rows: Iterable[int], *, reason: str = "", note: str = ""
+    ) -> list[Event]:
         """Relabel each row to the latest fit's suggested label, one step per distinct label."""
         if self.latest is None:
             raise SessionError("no fit yet: fit first to get suggested labels")
@@ -405,14 +436,24 @@ class ReviewSession:
         self._announce("edited", saved)
         return saved
 
-    def _edit(self, action: str, rows: Iterable[int], *, label: str | None = None, reason: str = "", note: str = "") -> Event:
+    def _edit(
+        self,
+        action: str,
+        rows: Iterable[int],
+        *,
+        label: str | None = None,
+        reason: str = "",
+        note: str = "",
+    ) -> Event:
         self._writable()
         rows = sorted({int(r) for r in rows})
         if not rows and action != editlog.NOTE:
             raise SessionError(f"{action}: no rows selected")
         bad = [r for r in rows if not 0 <= r < self.n_rows]
         if bad:
-            raise SessionError(f"{action}: row {bad[0]} is outside the table (0..{self.n_rows - 1})")
+            raise SessionError(
+                f"{action}: row {bad[0]} is outside the table (0..{self.n_rows - 1})"
+            )
         slack = zone = None
         if self.latest is not None:
             slack = self.latest.rows["slack"].to_numpy()[rows].tolist()
@@ -435,7 +476,9 @@ class ReviewSession:
 
     def _writable(self) -> None:
         if self.read_only:
-            raise SessionError(f"the session is read-only: {self.file.read_only_reason or 'opened to look only'}")
+            raise SessionError(
+                f"the session is read-only: {self.file.read_only_reason or 'opened to look only'}"
+            )
 
     def _to_current(self, event: Event) -> Event:
         """The event with rows in the current table's positions: by row id when the table
@@ -465,7 +508,9 @@ class ReviewSession:
     @staticmethod
     def compute_fit(job: FitJob, progress: ProgressFn | None = None, cancel=None) -> FitResult:
         """Pure: safe to run on a worker thread. Raises Cancelled if ``cancel`` is set."""
-        return fit_margins(job.X, job.labels, job.settings, excluded=job.excluded, progress=progress, cancel=cancel)
+        return fit_margins(
+            job.X, job.labels, job.settings, excluded=job.excluded, progress=progress, cancel=cancel
+        )
 
     def apply_fit(self, job: FitJob, result: FitResult) -> None:
         """Keep a finished fit as the latest (or the baseline) and save its per-row results."""
@@ -480,11 +525,15 @@ class ReviewSession:
             if self.baseline is None and job.last_seq == 0:
                 self.baseline = result
                 if not self.read_only:
-                    self.file.save_fit("baseline", result.settings, _jsonable(result.summary), result.rows)
+                    self.file.save_fit(
+                        "baseline", result.settings, _jsonable(result.summary), result.rows
+                    )
         self._norms = None
         self._announce("fitted", result)
 
-    def fit(self, settings: FitSettings | None = None, progress: ProgressFn | None = None, cancel=None) -> FitResult:
+    def fit(
+        self, settings: FitSettings | None = None, progress: ProgressFn | None = None, cancel=None
+    ) -> FitResult:
         """Fit on the current labels and keep the result (the command line's one-call path)."""
         if settings is not None:
             self.set_settings(settings)
@@ -496,7 +545,11 @@ class ReviewSession:
     def _load_saved_fits(self) -> None:
         for slot in ("baseline", "latest"):
             record = self.file.load_fit(slot)
-            if record is None or len(record.rows) != self.n_rows or list(record.rows.columns) != list(ROW_COLUMNS):
+            if (
+                record is None
+                or len(record.rows) != self.n_rows
+                or list(record.rows.columns) != list(ROW_COLUMNS)
+            ):
                 continue
             rows = record.rows.copy()
             for col in ("zone", "support", "suggested_label"):
@@ -513,9 +566,19 @@ class ReviewSession:
         """The k nearest labelled, included rows in the model's feature space."""
         use = np.array([v is not None for v in self.labels]) & ~self.excluded
         pos, dist = nearest_neighbours(self.X, row, use, k)
-        slack = self.latest.rows["slack"].to_numpy()[pos] if self.latest is not None else np.full(len(pos), np.nan)
+        slack = (
+            self.latest.rows["slack"].to_numpy()[pos]
+            if self.latest is not None
+            else np.full(len(pos), np.nan)
+        )
         return pd.DataFrame(
-            {"row": pos, "row_id": self.ids[pos], "label": self.labels[pos], "slack": slack, "distance": dist}
+            {
+                "row": pos,
+                "row_id": self.ids[pos],
+                "label": self.labels[pos],
+                "slack": slack,
+                "distance": dist,
+            }
         )
 
     def feature_profile(self, row: int) -> pd.DataFrame:
@@ -523,7 +586,9 @@ class ReviewSession:
             use = np.array([v is not None for v in self.labels]) & ~self.excluded
             self._norms = class_norms(self.frame, self.roles, self.labels, use)
         label = self.labels[row]
-        return feature_profile(self.frame, self.roles, self._norms, row, None if label is None else str(label))
+        return feature_profile(
+            self.frame, self.roles, self._norms, row, None if label is None else str(label)
+        )
 
     def projection(self) -> tuple[np.ndarray, np.ndarray]:
         """(n, 2) principal-component coordinates of the feature space, and variance shares."""
@@ -546,7 +611,9 @@ class ReviewSession:
 
         src = self.loaded.source
         if sha256_of(src.path) != src.sha256:
-            raise SourceChangedError(f"{src.path} changed on disk since it was opened; reopen it before exporting")
+            raise SourceChangedError(
+                f"{src.path} changed on disk since it was opened; reopen it before exporting"
+            )
         protect = [src.path, self.session_path]
         written = [
             ex.export_cleaned(
@@ -562,10 +629,18 @@ class ReviewSession:
         ]
         events = [e.to_dict() for e in self.events()]
         if audit:
-            writer = ex.write_audit_jsonl if str(audit).lower().endswith((".jsonl", ".json")) else ex.write_audit_csv
+            writer = (
+                ex.write_audit_jsonl
+                if str(audit).lower().endswith((".jsonl", ".json"))
+                else ex.write_audit_csv
+            )
             written.append(writer(events, audit, overwrite=overwrite, protect=protect))
         if report:
-            written.append(ex.write_summary_html(self.summary_for_report(written), report, overwrite=overwrite, protect=protect))
+            written.append(
+                ex.write_summary_html(
+                    self.summary_for_report(written), report, overwrite=overwrite, protect=protect
+                )
+            )
         return written
 
     def summary_for_report(self, written: Sequence[Path] = ()) -> dict[str, Any]:
@@ -594,7 +669,11 @@ class ReviewSession:
             summary["metrics"] = comparison.metrics
             summary["changed_rows"] = [
                 {"row_id": str(self.ids[r]), **{k: v for k, v in ch.items() if k != "row"}}
-                for r, ch in zip(comparison.changed_rows["row"], comparison.changed_rows.to_dict("records"), strict=True)
+                for r, ch in zip(
+                    comparison.changed_rows["row"],
+                    comparison.changed_rows.to_dict("records"),
+                    strict=True,
+                )
             ][:500]
         return summary
 
@@ -630,5 +709,10 @@ def export_session(
         raise SessionError(f"the data file of session {session_path} is missing: {source}")
     with ReviewSession.open(source, session_path=session_path, read_only=True) as session:
         if session.warnings and any("changed" in w for w in session.warnings):
-            raise SourceChangedError(f"{source} changed since session {session_path} began; re-attach it in the window first")
-        return session.export(out, audit=audit, report=report, keep_excluded=keep_excluded, overwrite=overwrite)
+            raise SourceChangedError(
+                f"{source} changed since session {session_path} began; "
+                "re-attach it in the window first"
+            )
+        return session.export(
+            out, audit=audit, report=report, keep_excluded=keep_excluded, overwrite=overwrite
+        )
