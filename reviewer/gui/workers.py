@@ -55,6 +55,7 @@ class _TaskThread(QThread):
         self._kwargs = kwargs
         self._cancel = cancel
         self._last_emit = 0.0
+        self.done = False  # set as the last act of run(); read by the reaper
 
     def _progress(self, fraction: float, message: str = "") -> None:
         now = time.monotonic()
@@ -64,6 +65,12 @@ class _TaskThread(QThread):
             self.progressed.emit(float(min(max(fraction, 0.0), 1.0)), str(message))
 
     def run(self) -> None:
+        try:
+            self._run()
+        finally:
+            self.done = True
+
+    def _run(self) -> None:
         try:
             result = self._fn(
                 *self._args, progress=self._progress, cancel=self._cancel, **self._kwargs
@@ -80,6 +87,40 @@ class _TaskThread(QThread):
             self.stopped.emit()
         else:
             self.succeeded.emit(result)
+
+
+class _Reaper(QObject):
+    """Holds every worker thread until it has ended, independent of any runner's lifetime.
+
+    A QThread object destroyed while its thread still runs aborts the process, and a runner
+    may be dropped (a test ends, a dialog closes) a moment before its thread has ended.
+    """
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.threads: set[_TaskThread] = set()
+
+    def adopt(self, thread: _TaskThread) -> None:
+        self.threads.add(thread)
+        # Bound to this GUI-thread object, so the clean-up runs on the GUI thread.
+        thread.finished.connect(self.reap)
+
+    def reap(self) -> None:
+        for thread in [t for t in self.threads if t.done]:
+            # run() has returned, so this wait is at most a few microseconds.
+            thread.wait()
+            self.threads.discard(thread)
+            thread.deleteLater()
+
+
+_reaper: _Reaper | None = None
+
+
+def _get_reaper() -> _Reaper:
+    global _reaper
+    if _reaper is None:
+        _reaper = _Reaper()
+    return _reaper
 
 
 class TaskRunner(QObject):
@@ -102,8 +143,6 @@ class TaskRunner(QObject):
         self._thread: _TaskThread | None = None
         self._cancel: threading.Event | None = None
         self._running = False
-        # Threads are kept until Qt reports them finished, so none is destroyed mid-run.
-        self._threads: set[_TaskThread] = set()
 
     @property
     def is_running(self) -> bool:
@@ -119,9 +158,7 @@ class TaskRunner(QObject):
         thread.succeeded.connect(self._on_succeeded)
         thread.raised.connect(self._on_raised)
         thread.stopped.connect(self._on_stopped)
-        # A bound method of this GUI-thread object, so the clean-up runs on the GUI thread.
-        thread.finished.connect(self._reap)
-        self._threads.add(thread)
+        _get_reaper().adopt(thread)
         self._thread = thread
         self._cancel = cancel
         self._running = True
@@ -134,8 +171,13 @@ class TaskRunner(QObject):
 
     def wait(self, msecs: int = 5000) -> bool:
         """Block until the worker thread has ended (for shutdown); True if it did."""
-        threads = list(self._threads)
-        return all(t.wait(msecs) for t in threads)
+        thread = self._thread
+        if thread is None:
+            return True
+        try:
+            return bool(thread.wait(msecs))
+        except RuntimeError:  # already reaped and deleted: it has ended
+            return True
 
     def shutdown(self, msecs: int = 5000) -> bool:
         """Cancel and wait: call from the window's closeEvent."""
@@ -165,10 +207,3 @@ class TaskRunner(QObject):
         if self._current():
             self._running = False
             self.cancelled.emit()
-
-    def _reap(self) -> None:
-        for thread in [t for t in self._threads if t.isFinished()]:
-            self._threads.discard(thread)
-            if thread is self._thread:
-                self._thread = None
-            thread.deleteLater()
