@@ -22,6 +22,7 @@ from PySide6.QtCore import (
     Signal,
 )
 from PySide6.QtGui import QColor
+from PySide6.QtWidgets import QTableView
 
 from reviewer.core.errors import InputError
 
@@ -234,7 +235,9 @@ class ArrayTableModel(QAbstractTableModel):
 
     def sort(self, column: int, order: Qt.SortOrder = Qt.SortOrder.AscendingOrder) -> None:
         """Qt entry point (header clicks with setSortingEnabled(True))."""
-        if 0 <= column < len(self._columns):
+        if column < 0:
+            self.clear_sort()
+        elif column < len(self._columns):
             self.sort_by(self._columns[column].key, order == Qt.SortOrder.DescendingOrder)
 
     @property
@@ -382,6 +385,28 @@ class ArrayTableModel(QAbstractTableModel):
         if kind == "i":
             return str(value)
         return str(value)
+
+
+def link_sort_indicator(view: QTableView, model: ArrayTableModel) -> None:
+    """Keep the header's sort arrow in step with sorts made in code (``model.sort_by``).
+
+    The header's signals are blocked while the arrow moves, so this never sorts twice.
+    """
+    header = view.horizontalHeader()
+
+    def show_sort(key: str, descending: bool) -> None:
+        order = Qt.SortOrder.DescendingOrder if descending else Qt.SortOrder.AscendingOrder
+        section = model.column_index(key) if key else -1
+        if header.sortIndicatorSection() == section and header.sortIndicatorOrder() == order:
+            return
+        blocked = header.blockSignals(True)
+        try:
+            header.setSortIndicator(section, order)
+        finally:
+            header.blockSignals(blocked)
+        header.viewport().update()
+
+    model.sort_changed.connect(show_sort)
 
 
 def _is_missing(spec: ColumnSpec, value: Any) -> bool:

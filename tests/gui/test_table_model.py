@@ -21,6 +21,7 @@ from reviewer.gui.table_model import (
     SOURCE_ROW_ROLE,
     ArrayTableModel,
     ColumnSpec,
+    link_sort_indicator,
     stable_order,
 )
 
@@ -249,3 +250,21 @@ def test_benchmark_smoke_writes_both_result_files(tmp_path):
     assert data["show_seconds"]["median"] > 0 and data["resort_seconds"]["median"] > 0
     md = (tmp_path / "window_table.md").read_text()
     assert "PySide6" in md and "10,000" in md
+
+
+def test_sort_in_code_moves_the_header_arrow_without_a_second_sort(qtbot):
+    model = make_model()
+    view = QTableView()
+    qtbot.addWidget(view)
+    view.setModel(model)
+    view.horizontalHeader().setSortIndicator(0, Qt.SortOrder.AscendingOrder)
+    view.setSortingEnabled(True)
+    link_sort_indicator(view, model)
+    sorts: list[tuple[str, bool]] = []
+    model.sort_changed.connect(lambda k, d: sorts.append((k, d)))
+    model.sort_by("label", descending=True)
+    header = view.horizontalHeader()
+    assert header.sortIndicatorSection() == 2
+    assert header.sortIndicatorOrder() == Qt.SortOrder.DescendingOrder
+    assert sorts == [("label", True)]
+    assert view_sources(model) == [0, 2, 4, 3, 1, 5]
