@@ -156,10 +156,13 @@ def _object_array(values: Iterable[Any], n: int) -> np.ndarray:
     return out
 
 
-def _last_positions(values: np.ndarray) -> np.ndarray:
-    """Index of the last occurrence of each distinct value."""
-    _, first_in_reversed = np.unique(values[::-1], return_index=True)
-    return values.size - 1 - first_in_reversed
+def _last_positions(values: np.ndarray, n: int) -> np.ndarray:
+    """Index of the last occurrence of each distinct value in 0..n-1 (no sort needed)."""
+    last = np.full(n, -1, dtype=np.intp)
+    # ufunc.at is unbuffered, so repeated values resolve to the largest index, unlike
+    # plain fancy assignment whose order numpy does not promise.
+    np.maximum.at(last, values, np.arange(values.size, dtype=np.intp))
+    return last[last >= 0]
 
 
 class LabelState:
@@ -442,7 +445,7 @@ def _final_state(source: np.ndarray, edits: Sequence[Event]) -> tuple[np.ndarray
             int(is_relabel.sum()),
         )
         rel_rows = rows[is_relabel]
-        last = _last_positions(rel_rows)
+        last = _last_positions(rel_rows, n)
         labels[rel_rows[last]] = values[last]
 
     # The last keep/relabel/exclude decides a row's state; a restore after it matters
@@ -450,9 +453,9 @@ def _final_state(source: np.ndarray, edits: Sequence[Event]) -> tuple[np.ndarray
     decided = act != _RESTORE_CODE
     dec_rows, dec_act = rows[decided], act[decided]
     if dec_rows.size:
-        last = _last_positions(dec_rows)
+        last = _last_positions(dec_rows, n)
         review[dec_rows[last]] = dec_act[last]
-    last_any = _last_positions(rows)
+    last_any = _last_positions(rows, n)
     restored = rows[last_any][act[last_any] == _RESTORE_CODE]
     restored = restored[review[restored] == EXCLUDED]
     if restored.size:
