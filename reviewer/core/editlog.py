@@ -74,12 +74,16 @@ def utc_now() -> str:
 
 
 def plain(value: Any) -> Any:
-    """A label as a plain JSON-friendly Python value; NaN and None both become None."""
+    """A label as a plain JSON-friendly Python value; NaN, NaT, NA and None become None."""
     if isinstance(value, np.generic):
         value = value.item()
-    if isinstance(value, float) and value != value:
+    if value is None:
         return None
-    return value
+    try:
+        missing = bool(value != value)  # NaN and NaT are not equal to themselves
+    except (TypeError, ValueError):  # pandas' NA refuses to be a bool: missing as well
+        missing = True
+    return None if missing else value
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)
@@ -152,10 +156,13 @@ def _object_array(values: Iterable[Any], n: int) -> np.ndarray:
     return out
 
 
-def _last_positions(values: np.ndarray) -> np.ndarray:
-    """Index of the last occurrence of each distinct value."""
-    _, first_in_reversed = np.unique(values[::-1], return_index=True)
-    return values.size - 1 - first_in_reversed
+def _last_positions(values: np.ndarray, n: int) -> np.ndarray:
+    """Index of the last occurrence of each distinct value in 0..n-1 (no sort needed)."""
+    last = np.full(n, -1, dtype=np.intp)
+    # ufunc.at is unbuffered, so repeated values resolve to the largest index, unlike
+    # plain fancy assignment whose order numpy does not promise.
+    np.maximum.at(last, values, np.arange(values.size, dtype=np.intp))
+    return last[last >= 0]
 
 
 class LabelState:
@@ -167,15 +174,24 @@ class LabelState:
     """
 
     def __init__(self, source_labels: Sequence[Any] | np.ndarray) -> None:
-        src = np.asarray(source_labels, dtype=object)
-        if src.ndim != 1:
-            raise SessionError(f"source labels must be one column, got shape {src.shape}")
-        self._source = _object_array((plain(v) for v in src), src.size)
+        arr = np.asarray(source_labels)
+        if arr.ndim != 1:
+            raise SessionError(f"source labels must be one column, got shape {arr.shape}")
+        # tolist() turns numpy scalars into plain Python values in one C loop.
+        src = arr if arr.dtype == object else _object_array(arr.tolist(), arr.size)
+        if src is arr:
+            src = arr.copy()
+        try:
+            src[src != src] = None  # NaN is the only value not equal to itself: unlabelled
+        except (TypeError, ValueError):  # a value such as pandas' NA: go row by row
+            src = _object_array(map(plain, src), src.size)
+        self._source = src
         self._labels = self._source.copy()
         self._review = np.zeros(src.size, dtype=np.int8)
-        # Each live edit with the rows' prior (labels, review); None after a bulk replay,
-        # in which case undoing it rebuilds from the remaining live edits.
-        self._done: list[tuple[Event, tuple[np.ndarray, np.ndarray, np.ndarray] | None]] = []
+        # The live edits, and beside each its rows' prior (labels, review); None after a
+        # bulk replay, in which case undoing it rebuilds from the remaining live edits.
+        self._done: list[Event] = []
+        self._snapshots: list[tuple[np.ndarray, np.ndarray, np.ndarray] | None] = []
         self._undone: list[Event] = []
         self._last_seq = 0
 
@@ -217,7 +233,7 @@ class LabelState:
 
     def undo_target(self) -> int | None:
         """Seq of the edit an undo would revert now, or None."""
-        return self._done[-1][0].seq if self._done else None
+        return self._done[-1].seq if self._done else None
 
     def redo_target(self) -> int | None:
         """Seq of the edit a redo would re-apply now, or None."""
@@ -225,7 +241,7 @@ class LabelState:
 
     def live_edits(self) -> list[Event]:
         """The edits that make up the current state, oldest first."""
-        return [ev for ev, _ in self._done]
+        return list(self._done)
 
     # ---- building events -------------------------------------------------------------
     def make_edit(
@@ -256,10 +272,10 @@ class LabelState:
             label = plain(label)
             if label is None:
                 raise SessionError("relabel needs a label; got none")
-            before = tuple(self._labels[idx].tolist())
+            before = tuple(plain(v) for v in self._labels[idx])
             after = (label,) * n
         elif action == NOTE:
-            before = after = tuple(self._labels[idx].tolist())
+            before = after = tuple(plain(v) for v in self._labels[idx])
         else:
             old = self._review[idx]
             before = tuple(REVIEW_NAMES[c] for c in old.tolist())
@@ -282,7 +298,7 @@ class LabelState:
         """An unsaved undo event for the most recent live edit."""
         if not self._done:
             raise SessionError("nothing to undo")
-        return self._make_step(UNDO, self._done[-1][0], reviewer, reason, time)
+        return self._make_step(UNDO, self._done[-1], reviewer, reason, time)
 
     def make_redo(self, *, reviewer: str, reason: str = "", time: str | None = None) -> Event:
         """An unsaved redo event for the most recently undone edit."""
@@ -314,17 +330,18 @@ class LabelState:
         action = event.action
         if action in EDIT_ACTIONS:
             snapshot = self._do(event)
-            self._done.append((event, snapshot))
+            self._done.append(event)
+            self._snapshots.append(snapshot)
             self._undone.clear()
         elif action == UNDO:
-            if not self._done or self._done[-1][0].seq != event.target:
+            if not self._done or self._done[-1].seq != event.target:
                 raise SessionError(
                     f"event {event.seq} undoes seq {event.target}, but the edit to undo is "
                     f"{self.undo_target()}"
                 )
-            top, snapshot = self._done.pop()
+            top, snapshot = self._done.pop(), self._snapshots.pop()
             if snapshot is None:
-                self._labels, self._review = _final_state(self._source, self.live_edits())
+                self._labels, self._review = _final_state(self._source, self._done)
             else:
                 idx, labels, review = snapshot
                 self._labels[idx] = labels
@@ -337,7 +354,8 @@ class LabelState:
                     f"{self.redo_target()}"
                 )
             top = self._undone.pop()
-            self._done.append((top, self._do(top)))
+            self._snapshots.append(self._do(top))
+            self._done.append(top)
         self._last_seq = event.seq
 
     @classmethod
@@ -373,7 +391,8 @@ class LabelState:
                 if undone:
                     undone = []
         state._labels, state._review = _final_state(state._source, done)
-        state._done = [(ev, None) for ev in done]
+        state._done = done
+        state._snapshots = [None] * len(done)
         state._undone = undone
         state._last_seq = last
         return state
@@ -410,11 +429,10 @@ def _final_state(source: np.ndarray, edits: Sequence[Event]) -> tuple[np.ndarray
     review = np.zeros(n, dtype=np.int8)
     if not edits:
         return labels, review
-    lengths = np.fromiter((len(e.rows) for e in edits), dtype=np.intp, count=len(edits))
+    row_lists = [e.rows for e in edits]
+    lengths = np.fromiter(map(len, row_lists), dtype=np.intp, count=len(edits))
     total = int(lengths.sum())
-    rows = np.fromiter(
-        itertools.chain.from_iterable(e.rows for e in edits), dtype=np.intp, count=total
-    )
+    rows = np.fromiter(itertools.chain.from_iterable(row_lists), dtype=np.intp, count=total)
     if rows.size and (rows.min() < 0 or rows.max() >= n):
         raise SessionError(f"an event names a row outside the table of {n} rows")
     codes = np.fromiter((_ACTION_CODE[e.action] for e in edits), dtype=np.int8, count=len(edits))
@@ -427,7 +445,7 @@ def _final_state(source: np.ndarray, edits: Sequence[Event]) -> tuple[np.ndarray
             int(is_relabel.sum()),
         )
         rel_rows = rows[is_relabel]
-        last = _last_positions(rel_rows)
+        last = _last_positions(rel_rows, n)
         labels[rel_rows[last]] = values[last]
 
     # The last keep/relabel/exclude decides a row's state; a restore after it matters
@@ -435,9 +453,9 @@ def _final_state(source: np.ndarray, edits: Sequence[Event]) -> tuple[np.ndarray
     decided = act != _RESTORE_CODE
     dec_rows, dec_act = rows[decided], act[decided]
     if dec_rows.size:
-        last = _last_positions(dec_rows)
+        last = _last_positions(dec_rows, n)
         review[dec_rows[last]] = dec_act[last]
-    last_any = _last_positions(rows)
+    last_any = _last_positions(rows, n)
     restored = rows[last_any][act[last_any] == _RESTORE_CODE]
     restored = restored[review[restored] == EXCLUDED]
     if restored.size:

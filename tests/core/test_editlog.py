@@ -312,3 +312,12 @@ def test_benchmark_smoke_mode_writes_its_table(tmp_path):
     data = json.loads((tmp_path / "replay_smoke.json").read_text())
     assert data["replay"]["events"] > 0 and data["replay"]["median_s"] > 0
     assert data["commit"]["median_ms"] > 0
+
+
+def test_missing_markers_from_pandas_count_as_unlabelled():
+    import pandas as pd
+
+    state = LabelState(pd.Series(["x", pd.NA, None], dtype=object).to_numpy())
+    assert state.labels.tolist() == ["x", None, None]
+    ints = LabelState(np.array([3, 4], dtype=np.int64))
+    assert type(ints.labels[0]) is int
