@@ -118,7 +118,7 @@ def test_export_through_the_session_changes_only_labels(data: Path, tmp_path: Pa
         report = tmp_path / "summary.html"
         written = s.export(out, audit=audit, report=report)
         assert [p.name for p in written] == ["clean.csv", "audit.csv", "summary.html"]
-        with pytest.raises(Exception, match="source|data file"):
+        with pytest.raises(Exception, match=r"source|data file"):
             s.export(data, overwrite=True)
     source = pd.read_csv(data, dtype=str, keep_default_na=False)
     clean = pd.read_csv(out, dtype=str, keep_default_na=False)
