@@ -49,7 +49,12 @@ META_KEYS = (
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 # Autocommit mode: transactions are opened and closed explicitly. Access from several
 # threads is serialised by SessionFile's own lock.
-_CONNECT: dict[str, Any] = {"uri": True, "isolation_level": None, "check_same_thread": False}
+_CONNECT: dict[str, Any] = {
+    "uri": True,
+    "isolation_level": None,
+    "check_same_thread": False,
+    "timeout": 5.0,  # wait out a checkpoint or another reader instead of failing at once
+}
 
 
 def _migrate_0_to_1(conn: sqlite3.Connection) -> None:
@@ -198,17 +203,21 @@ class SessionFile:
         # never leaves a half-made session file under the real name.
         tmp = path.with_name(f".{path.name}.{os.getpid()}.creating")
         tmp.unlink(missing_ok=True)
-        conn = sqlite3.connect(tmp, isolation_level=None)
         try:
-            conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
-            conn.execute("BEGIN")
-            cls._migrate(conn, 0, path)
-            rows = [("created", json.dumps(utc_now()))]
-            rows += [(k, json.dumps(v)) for k, v in meta.items()]
-            conn.executemany("INSERT OR REPLACE INTO meta(key, value) VALUES (?, ?)", rows)
-            conn.execute("COMMIT")
-        finally:
-            conn.close()
+            conn = sqlite3.connect(tmp, isolation_level=None)
+            try:
+                conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+                conn.execute("BEGIN")
+                cls._migrate(conn, 0, path)
+                rows = [("created", json.dumps(utc_now()))]
+                rows += [(k, json.dumps(v)) for k, v in meta.items()]
+                conn.executemany("INSERT OR REPLACE INTO meta(key, value) VALUES (?, ?)", rows)
+                conn.execute("COMMIT")
+            finally:
+                conn.close()
+        except (sqlite3.Error, OSError, TypeError, ValueError) as exc:
+            tmp.unlink(missing_ok=True)
+            raise SessionError(f"cannot create session file {path}: {exc}") from exc
         try:
             os.link(tmp, path)
         except FileExistsError as exc:
@@ -230,9 +239,10 @@ class SessionFile:
             raise SessionError(f"session file {path} does not exist")
         _check_header(path)
         note = ""
+        writable = _location_writable(path)
         if read_only:
             note = "opened read-only on request"
-        elif not _location_writable(path):
+        elif not writable:
             read_only = True
             note = f"{path} or its folder is not writable; opened read-only, edits are off"
         lock = None
@@ -241,7 +251,7 @@ class SessionFile:
             lock = _Lock(path)
             lock.acquire(path)
         try:
-            conn = cls._connect(path, read_only)
+            conn = cls._connect(path, read_only, writable)
             cls._check_contents(conn, path)
             version = conn.execute("PRAGMA user_version").fetchone()[0]
             if version > schema_version():
@@ -275,7 +285,7 @@ class SessionFile:
         return cls(path, conn, lock, note)
 
     @staticmethod
-    def _connect(path: Path, read_only: bool) -> sqlite3.Connection:
+    def _connect(path: Path, read_only: bool, writable: bool) -> sqlite3.Connection:
         uri = path.resolve().as_uri()
         try:
             if not read_only:
@@ -285,11 +295,20 @@ class SessionFile:
                 try:
                     conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
                 except sqlite3.OperationalError:
-                    # A WAL file in a folder we cannot write has no -shm to map; nobody can
-                    # write it there either, so reading it as immutable is safe.
+                    if writable:
+                        raise
+                    # A WAL-mode file in a folder we cannot write has no -shm to map.
+                    # Nobody can write it there either, so reading it as immutable is
+                    # safe, unless a -wal holds commits the main file does not have yet.
                     conn.close()
+                    wal = path.with_name(path.name + "-wal")
+                    if wal.exists() and wal.stat().st_size > 0:
+                        raise SessionError(
+                            f"session file {path} has recent edits in {wal.name}, and its "
+                            "folder is not writable, so they cannot be read; copy both files "
+                            "to a writable folder"
+                        ) from None
                     conn = sqlite3.connect(uri + "?mode=ro&immutable=1", **_CONNECT)
-            conn.execute("PRAGMA busy_timeout = 5000")
         except sqlite3.Error as exc:
             raise SessionError(f"session file {path} cannot be opened: {exc}") from exc
         return conn

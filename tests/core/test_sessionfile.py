@@ -289,3 +289,9 @@ def test_fit_worker_thread_may_write_while_window_thread_appends(session):
         t.join()
         assert not errors
         assert sf.last_seq() == 8 and sf.load_fit("latest").settings == {"i": 4}
+
+
+def test_create_in_a_missing_folder_names_the_file(tmp_path):
+    target = tmp_path / "no-such-folder" / "s.mrs"
+    with pytest.raises(SessionError, match=r"cannot create session file .*s\.mrs"):
+        SessionFile.create(target, META)
