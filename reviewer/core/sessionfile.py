@@ -17,12 +17,14 @@ leaves a stale lock. Readers take no lock.
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import io
 import json
 import os
 import sqlite3
 import struct
 import sys
+import threading
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -45,6 +47,14 @@ META_KEYS = (
     "created",
 )
 _SQLITE_MAGIC = b"SQLite format 3\x00"
+# Autocommit mode: transactions are opened and closed explicitly. Access from several
+# threads is serialised by SessionFile's own lock.
+_CONNECT: dict[str, Any] = {
+    "uri": True,
+    "isolation_level": None,
+    "check_same_thread": False,
+    "timeout": 5.0,  # wait out a checkpoint or another reader instead of failing at once
+}
 
 
 def _migrate_0_to_1(conn: sqlite3.Connection) -> None:
@@ -173,6 +183,9 @@ class SessionFile:
         self.path = path
         self._conn = conn
         self._lock = lock
+        # One connection shared by the window thread and fit workers; this keeps their
+        # statements and transactions from interleaving.
+        self._mutex = threading.RLock()
         self.read_only_reason = note
         """Empty when writable; otherwise why the file is open read-only (for the window)."""
 
@@ -190,17 +203,21 @@ class SessionFile:
         # never leaves a half-made session file under the real name.
         tmp = path.with_name(f".{path.name}.{os.getpid()}.creating")
         tmp.unlink(missing_ok=True)
-        conn = sqlite3.connect(tmp, isolation_level=None)
         try:
-            conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
-            conn.execute("BEGIN")
-            cls._migrate(conn, 0, path)
-            rows = [("created", json.dumps(utc_now()))]
-            rows += [(k, json.dumps(v)) for k, v in meta.items()]
-            conn.executemany("INSERT OR REPLACE INTO meta(key, value) VALUES (?, ?)", rows)
-            conn.execute("COMMIT")
-        finally:
-            conn.close()
+            conn = sqlite3.connect(tmp, isolation_level=None)
+            try:
+                conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+                conn.execute("BEGIN")
+                cls._migrate(conn, 0, path)
+                rows = [("created", json.dumps(utc_now()))]
+                rows += [(k, json.dumps(v)) for k, v in meta.items()]
+                conn.executemany("INSERT OR REPLACE INTO meta(key, value) VALUES (?, ?)", rows)
+                conn.execute("COMMIT")
+            finally:
+                conn.close()
+        except (sqlite3.Error, OSError, TypeError, ValueError) as exc:
+            tmp.unlink(missing_ok=True)
+            raise SessionError(f"cannot create session file {path}: {exc}") from exc
         try:
             os.link(tmp, path)
         except FileExistsError as exc:
@@ -222,9 +239,10 @@ class SessionFile:
             raise SessionError(f"session file {path} does not exist")
         _check_header(path)
         note = ""
+        writable = _location_writable(path)
         if read_only:
             note = "opened read-only on request"
-        elif not _location_writable(path):
+        elif not writable:
             read_only = True
             note = f"{path} or its folder is not writable; opened read-only, edits are off"
         lock = None
@@ -233,7 +251,7 @@ class SessionFile:
             lock = _Lock(path)
             lock.acquire(path)
         try:
-            conn = cls._connect(path, read_only)
+            conn = cls._connect(path, read_only, writable)
             cls._check_contents(conn, path)
             version = conn.execute("PRAGMA user_version").fetchone()[0]
             if version > schema_version():
@@ -267,23 +285,30 @@ class SessionFile:
         return cls(path, conn, lock, note)
 
     @staticmethod
-    def _connect(path: Path, read_only: bool) -> sqlite3.Connection:
+    def _connect(path: Path, read_only: bool, writable: bool) -> sqlite3.Connection:
         uri = path.resolve().as_uri()
         try:
             if not read_only:
-                conn = sqlite3.connect(uri + "?mode=rw", uri=True, isolation_level=None)
+                conn = sqlite3.connect(uri + "?mode=rw", **_CONNECT)
             else:
-                conn = sqlite3.connect(uri + "?mode=ro", uri=True, isolation_level=None)
+                conn = sqlite3.connect(uri + "?mode=ro", **_CONNECT)
                 try:
                     conn.execute("SELECT count(*) FROM sqlite_master").fetchone()
                 except sqlite3.OperationalError:
-                    # A WAL file in a folder we cannot write has no -shm to map; nobody can
-                    # write it there either, so reading it as immutable is safe.
+                    if writable:
+                        raise
+                    # A WAL-mode file in a folder we cannot write has no -shm to map.
+                    # Nobody can write it there either, so reading it as immutable is
+                    # safe, unless a -wal holds commits the main file does not have yet.
                     conn.close()
-                    conn = sqlite3.connect(
-                        uri + "?mode=ro&immutable=1", uri=True, isolation_level=None
-                    )
-            conn.execute("PRAGMA busy_timeout = 5000")
+                    wal = path.with_name(path.name + "-wal")
+                    if wal.exists() and wal.stat().st_size > 0:
+                        raise SessionError(
+                            f"session file {path} has recent edits in {wal.name}, and its "
+                            "folder is not writable, so they cannot be read; copy both files "
+                            "to a writable folder"
+                        ) from None
+                    conn = sqlite3.connect(uri + "?mode=ro&immutable=1", **_CONNECT)
         except sqlite3.Error as exc:
             raise SessionError(f"session file {path} cannot be opened: {exc}") from exc
         return conn
@@ -315,11 +340,12 @@ class SessionFile:
 
     def close(self) -> None:
         """Close the file and drop the writer lock. Safe to call twice."""
-        if self._conn is not None:
-            self._conn.close()
-            self._conn = None  # type: ignore[assignment]
-        if self._lock is not None:
-            self._lock.release()
+        with self._mutex:
+            if self._conn is not None:
+                self._conn.close()
+                self._conn = None  # type: ignore[assignment]
+            if self._lock is not None:
+                self._lock.release()
 
     def __enter__(self) -> SessionFile:
         return self
@@ -334,12 +360,20 @@ class SessionFile:
             raise SessionError(f"cannot {what}: session file {self.path} is open read-only")
         return self._conn
 
-    def _reader(self) -> sqlite3.Connection:
-        if self._conn is None:
-            raise SessionError(f"session file {self.path} is closed")
-        return self._conn
+    def _query(self, sql: str, params: tuple[Any, ...] = ()) -> list[tuple[Any, ...]]:
+        with self._mutex:
+            if self._conn is None:
+                raise SessionError(f"session file {self.path} is closed")
+            try:
+                return self._conn.execute(sql, params).fetchall()
+            except sqlite3.Error as exc:
+                raise SessionError(f"cannot read session file {self.path}: {exc}") from exc
 
     def _write(self, what: str, fn: Callable[[sqlite3.Connection], Any]) -> Any:
+        with self._mutex:
+            return self._write_locked(what, fn)
+
+    def _write_locked(self, what: str, fn: Callable[[sqlite3.Connection], Any]) -> Any:
         conn = self._writable(what)
         try:
             conn.execute("BEGIN IMMEDIATE")
@@ -357,7 +391,7 @@ class SessionFile:
     @property
     def meta(self) -> dict[str, Any]:
         """All meta values, JSON-decoded (roles and settings come back as dicts)."""
-        rows = self._reader().execute("SELECT key, value FROM meta").fetchall()
+        rows = self._query("SELECT key, value FROM meta")
         return {k: json.loads(v) for k, v in rows}
 
     def set_meta(self, key: str, value: Any) -> None:
@@ -372,11 +406,19 @@ class SessionFile:
 
     # ---- events ------------------------------------------------------------------------
     def append_event(self, event: Event) -> Event:
-        """Store an event under the next seq; returns it with seq set, after the commit."""
-        per_row = json.dumps(
-            [event.rows, event.row_ids, event.before, event.after, event.slack, event.zone],
-            separators=(",", ":"),
-        )
+        """Store an unsaved event (seq 0) under the next seq, in its own transaction.
+
+        Returns the event with seq (and time, if it had none) set, only after the commit."""
+        if event.seq:
+            raise SessionError(f"event {event.seq} is already in the log of {self.path}")
+        try:
+            per_row = json.dumps(
+                [event.rows, event.row_ids, event.before, event.after, event.slack, event.zone],
+                separators=(",", ":"),
+                default=_json_value,
+            )
+        except (TypeError, ValueError) as exc:
+            raise SessionError(f"a {event.action} event cannot be stored: {exc}") from exc
 
         def insert(conn: sqlite3.Connection) -> int:
             seq = conn.execute("SELECT coalesce(max(seq), 0) + 1 FROM events").fetchone()[0]
@@ -384,7 +426,7 @@ class SessionFile:
                 "INSERT INTO events VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
                 (
                     seq,
-                    event.time or utc_now(),
+                    event.time,
                     event.reviewer,
                     event.action,
                     event.target,
@@ -395,16 +437,13 @@ class SessionFile:
             )
             return seq
 
+        event = dataclasses.replace(event, time=event.time or utc_now())
         seq = self._write(f"record a {event.action} event", insert)
-        time = (
-            event.time
-            or self._reader().execute("SELECT time FROM events WHERE seq = ?", (seq,)).fetchone()[0]
-        )
-        return _replace(event, seq=seq, time=time)
+        return dataclasses.replace(event, seq=seq)
 
     def events(self, after_seq: int = 0) -> list[Event]:
         """Every stored event with seq > after_seq, in seq order."""
-        rows = self._reader().execute(
+        rows = self._query(
             "SELECT seq, time, reviewer, action, target, reason, note, per_row FROM events "
             "WHERE seq > ? ORDER BY seq",
             (after_seq,),
@@ -437,7 +476,7 @@ class SessionFile:
 
     def last_seq(self) -> int:
         """Seq of the newest event, 0 when the log is empty."""
-        return self._reader().execute("SELECT coalesce(max(seq), 0) FROM events").fetchone()[0]
+        return self._query("SELECT coalesce(max(seq), 0) FROM events")[0][0]
 
     # ---- fits --------------------------------------------------------------------------
     def save_fit(
@@ -473,17 +512,14 @@ class SessionFile:
         """The fit in `slot` with its rows DataFrame, or None if none was saved."""
         if slot not in SLOTS:
             raise SessionError(f"fit slot {slot!r} is not one of {SLOTS}")
-        row = (
-            self._reader()
-            .execute(
-                "SELECT f.fit_id, f.time, f.last_seq, f.settings, f.summary, r.data "
-                "FROM fit_rows r JOIN fits f ON f.fit_id = r.fit_id WHERE r.slot = ?",
-                (slot,),
-            )
-            .fetchone()
+        found = self._query(
+            "SELECT f.fit_id, f.time, f.last_seq, f.settings, f.summary, r.data "
+            "FROM fit_rows r JOIN fits f ON f.fit_id = r.fit_id WHERE r.slot = ?",
+            (slot,),
         )
-        if row is None:
+        if not found:
             return None
+        row = found[0]
         import pandas as pd  # deferred: opening a session to append edits needs no pandas
 
         fit_id, time, last, settings, summary, data = row
@@ -499,7 +535,7 @@ class SessionFile:
 
     def fit_history(self) -> list[FitRecord]:
         """Every fit ever saved, oldest first, without per-row results."""
-        rows = self._reader().execute(
+        rows = self._query(
             "SELECT fit_id, slot, time, last_seq, settings, summary FROM fits ORDER BY fit_id"
         )
         return [
@@ -509,10 +545,11 @@ class SessionFile:
 
     def integrity_ok(self) -> bool:
         """Run SQLite's full integrity check now."""
-        return self._reader().execute("PRAGMA integrity_check").fetchall() == [("ok",)]
+        return self._query("PRAGMA integrity_check") == [("ok",)]
 
 
-def _replace(event: Event, **changes: Any) -> Event:
-    import dataclasses
-
-    return dataclasses.replace(event, **changes)
+def _json_value(value: Any) -> Any:
+    # numpy scalars that slipped into an event (labels, slack) are stored as plain values.
+    if hasattr(value, "item") and callable(value.item):
+        return value.item()
+    raise TypeError(f"{value!r} of type {type(value).__name__} cannot be stored")

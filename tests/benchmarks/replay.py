@@ -63,6 +63,13 @@ def make_log(n_rows: int, n_events: int, seed: int) -> tuple[np.ndarray, list[Ev
     return source, events
 
 
+def _load() -> float | None:
+    try:
+        return round(os.getloadavg()[0], 2)
+    except (AttributeError, OSError):  # not available on Windows
+        return None
+
+
 def timed(fn, repeats: int) -> list[float]:
     out = []
     for _ in range(repeats):
@@ -122,6 +129,7 @@ def main(argv: list[str] | None = None) -> int:
         "python": platform.python_version(),
         "cores": os.cpu_count(),
         "platform": platform.platform(),
+        "load_average_1min": _load(),
         "smoke": args.smoke,
         "rows": n_rows,
         "replay": {
@@ -147,6 +155,8 @@ def main(argv: list[str] | None = None) -> int:
     md = f"""# Edit log speed{" (smoke run)" if args.smoke else ""}
 
 Python {r["python"]}, {r["cores"]} cores, {r["platform"]}.
+Load average (1 min) when the run ended: {r["load_average_1min"]} (other jobs share the
+machine; a load above the core count slows every figure here).
 {n_events:,} events over a {n_rows:,}-row table (mostly single-row decisions, 0.5% bulk
 edits of 20-500 rows, about 6% undo and 3% redo); median of {repeats} runs.
 

@@ -254,3 +254,44 @@ def test_closed_file_refuses_use(session):
     sf.close()
     with pytest.raises(SessionError, match="closed"):
         sf.events()
+
+
+def test_saved_event_cannot_be_appended_twice_and_numpy_values_are_stored(session):
+    with SessionFile.open(session) as sf:
+        first = sf.events()[0]
+        with pytest.raises(SessionError, match="already in the log"):
+            sf.append_event(first)
+        ev = LabelState(np.array([1, 2], dtype=object)).make_edit(
+            "keep", [np.int64(1)], reviewer="x", slack=[np.float32(0.5)]
+        )
+        saved = sf.append_event(ev)
+        assert sf.events(after_seq=3) == [saved] and saved.slack == (0.5,)
+
+
+def test_fit_worker_thread_may_write_while_window_thread_appends(session):
+    import threading
+
+    errors: list[BaseException] = []
+    with SessionFile.open(session) as sf:
+
+        def worker() -> None:
+            try:
+                for i in range(5):
+                    sf.save_fit("latest", {"i": i}, {}, pd.DataFrame({"slack": [float(i)]}))
+            except BaseException as exc:  # reported to the main thread below
+                errors.append(exc)
+
+        t = threading.Thread(target=worker)
+        t.start()
+        state = LabelState(["a"] * 4)
+        for _ in range(5):
+            sf.append_event(state.make_edit("keep", [0], reviewer="x"))
+        t.join()
+        assert not errors
+        assert sf.last_seq() == 8 and sf.load_fit("latest").settings == {"i": 4}
+
+
+def test_create_in_a_missing_folder_names_the_file(tmp_path):
+    target = tmp_path / "no-such-folder" / "s.mrs"
+    with pytest.raises(SessionError, match=r"cannot create session file .*s\.mrs"):
+        SessionFile.create(target, META)
