@@ -143,6 +143,10 @@ class ReviewSession:
             np.concatenate([self.source_labels, np.full(len(ghosts), None, dtype=object)]),
             [self._to_current(e) for e in events],
         )
+        self._events: list[Event] = []
+        self._by_row: dict[int, list[int]] = {}
+        for e in events:
+            self._remember(e)
         self._listeners: list[Listener] = []
         self.latest: FitResult | None = None
         self.baseline: FitResult | None = None
@@ -358,11 +362,17 @@ class ReviewSession:
         return self.latest is not None and self.latest_seq == self._state.last_seq
 
     def events(self) -> list[Event]:
-        return self.file.events()
+        """Every event in the log, oldest first (kept in memory; the file is the record)."""
+        return list(self._events)
 
     def row_history(self, row: int) -> list[Event]:
         """Every event (undo and redo included) that names ``row``."""
-        return [e for e in self.file.events() if row in self._to_current(e).rows]
+        return [self._events[i] for i in self._by_row.get(row, [])]
+
+    def _remember(self, event: Event) -> None:
+        self._events.append(event)
+        for r in self._to_current(event).rows:
+            self._by_row.setdefault(r, []).append(len(self._events) - 1)
 
     def review_counts(self) -> dict[str, int]:
         codes = np.bincount(self.review.astype(np.int64), minlength=len(editlog.REVIEW_NAMES))
@@ -424,6 +434,7 @@ class ReviewSession:
         self._writable()
         saved = self.file.append_event(self._state.make_undo(reviewer=self.reviewer))
         self._state.apply(saved)
+        self._remember(saved)
         self._announce("edited", saved)
         return saved
 
@@ -433,6 +444,7 @@ class ReviewSession:
         self._writable()
         saved = self.file.append_event(self._state.make_redo(reviewer=self.reviewer))
         self._state.apply(saved)
+        self._remember(saved)
         self._announce("edited", saved)
         return saved
 
@@ -471,6 +483,7 @@ class ReviewSession:
         )
         saved = self.file.append_event(draft)
         self._state.apply(saved)
+        self._remember(saved)
         self._announce("edited", saved)
         return saved
 
