@@ -188,3 +188,6 @@ def test_single_row_class_warns_and_succeeds(tmp_path: Path) -> None:
     out = read_output(proc)
     assert "single labelled row" in proc.stderr
     assert np.isnan(out.loc[4, "heldout_margin"])
+    # a labelled row always gets a rank; the lone "odd" row is the most suspect one
+    assert out["rank"].notna().all()
+    assert out.loc[4, "rank"] <= 3

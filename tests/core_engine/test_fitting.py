@@ -84,6 +84,9 @@ def test_single_row_class_gets_empty_heldout_margin() -> None:
     notes = " ".join(result.summary["notes"])
     assert "single labelled row" in notes
     assert np.isnan(result.rows.loc[0, "heldout_margin"])
+    # its score falls back to the training margin, so it is still ranked
+    assert result.rows.loc[0, "score"] == pytest.approx(-result.rows.loc[0, "margin"])
+    assert result.rows.loc[0, "rank"] > 0
     assert np.isfinite(result.rows.loc[1:, "heldout_margin"]).all()
     assert effective_folds(np.array([0] * 10 + [1] * 3), 5)[0] == 3
 
