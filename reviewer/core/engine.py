@@ -37,6 +37,9 @@ SOLVERS = ("auto", "exact", "approximate")
 EXACT_LIMIT = 20_000
 # Relative tolerance for calling alpha "at the bound" or "zero" (LIBSVM stores exact bounds).
 ALPHA_RTOL = 1e-6
+# Slack at or below this counts as zero for the zone: LIBSVM stops at a dual-gradient tolerance
+# of 1e-4, which leaves rows that sit on the margin with slack of order 1e-5, not exactly 0.
+ZONE_TOL = 1e-3
 # Poly kernel (gamma x.z + coef0)^degree; coef0 = 1 keeps lower-order terms (common practice).
 POLY_COEF0 = 1.0
 DEFAULT_C = 1.0
@@ -311,8 +314,8 @@ def zones_from_slack(slack: np.ndarray) -> np.ndarray:
     zone = np.full(len(slack), "", dtype=object)
     finite = np.isfinite(slack)
     zone[finite & (slack > 1.0)] = "wrong_side"
-    zone[finite & (slack > 0.0) & (slack <= 1.0)] = "inside_margin"
-    zone[finite & (slack <= 0.0)] = "clear"
+    zone[finite & (slack > ZONE_TOL) & (slack <= 1.0)] = "inside_margin"
+    zone[finite & (slack <= ZONE_TOL)] = "clear"
     return zone
 
 

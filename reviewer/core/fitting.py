@@ -172,7 +172,9 @@ def fit_margins(
     held_slack = np.maximum(0.0, 1.0 - held_margin)
 
     use_heldout = settings.score == "heldout" and folds > 0
-    basis = held_margin if use_heldout else margin
+    # A row whose held-out margin is empty (its class has a single row) keeps its training
+    # margin as score, so a labelled row is never left without a rank.
+    basis = np.where(np.isnan(held_margin), margin, held_margin) if use_heldout else margin
     score = -basis
     F_suggest = F_held if use_heldout else F
     suggest_cols = np.where(np.isnan(F_suggest), -np.inf, F_suggest)
