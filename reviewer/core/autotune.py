@@ -25,7 +25,7 @@ from reviewer.core.progress import Reporter
 LINEAR_CS = (0.01, 0.1, 1.0)
 RBF_CS = (0.1, 1.0, 10.0, 100.0)
 RBF_GAMMA_FACTORS = (0.25, 1.0, 4.0)
-TUNE_ROWS = 2000
+TUNE_ROWS = 1000
 TUNE_FOLDS = 3
 CURVE_CS = tuple(float(c) for c in np.logspace(-3, 3, 13))
 
