@@ -233,7 +233,8 @@ def c_curve_for_labels(
     """The C curve over the current labels and exclusions, for a background task.
 
     Gammas are ``gamma_factors`` times the 'scale' gamma of the rows used (one curve each;
-    the linear kernel has one curve). Returns {"candidates", "n_rows", "sampled", "folds"}.
+    the linear kernel has one curve). Returns {"kernel", "candidates", "n_rows", "sampled",
+    "folds"}.
     """
     from reviewer.core.errors import InputError
 
@@ -261,6 +262,7 @@ def c_curve_for_labels(
         report=Reporter(progress, cancel),
     )
     return {
+        "kernel": kernel,
         "candidates": candidates,
         "n_rows": len(keep),
         "sampled": len(keep) < len(rows),
