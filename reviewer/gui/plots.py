@@ -20,7 +20,7 @@ from PySide6.QtWidgets import (
 )
 
 from reviewer.core import plotdata
-from reviewer.core.autotune import c_curve_for_labels
+from reviewer.core.autotune import CURVE_CS, c_curve_for_labels
 from reviewer.core.editlog import REVIEW_NAMES
 from reviewer.core.engine import FitSettings
 from reviewer.gui import palette
@@ -375,7 +375,9 @@ class CCurvePlot(QWidget):
         self.session = session
         self.bus = bus
         self.result: dict | None = None
+        self.Cs: tuple[float, ...] = CURVE_CS  # the grid of C to sweep
         self.series: list[plotdata.CurveSeries] = []
+        self.curves: list[tuple[plotdata.CurveSeries, str, pg.PlotDataItem]] = []
         self.runner = TaskRunner(self)
         self.runner.progress.connect(self._on_progress)
         self.runner.finished.connect(self._on_finished)
@@ -451,6 +453,7 @@ class CCurvePlot(QWidget):
             s.labels.copy(),
             s.excluded.copy(),
             kernel=self.kernel_combo.currentText(),
+            Cs=tuple(self.Cs),
             degree=int(st.degree),
             class_weight=st.class_weight,
             folds=int(st.folds) if st.folds else 5,
@@ -496,6 +499,7 @@ class CCurvePlot(QWidget):
             p.clear()
             legend.clear()
         self.chosen_lines = []
+        self.curves: list[tuple[plotdata.CurveSeries, str, pg.PlotDataItem]] = []
         styles = [Qt.PenStyle.SolidLine, Qt.PenStyle.DashLine, Qt.PenStyle.DotLine]
         for gi, s in enumerate(self.series):
             style = styles[gi % len(styles)]
@@ -520,6 +524,7 @@ class CCurvePlot(QWidget):
                     lambda _item, points, _ev=None, series=s: self._on_point(series, points)
                 )
                 plot.addItem(curve)
+                self.curves.append((s, name, curve))
                 legend = self.legends[0 if plot is self.acc_plot else 1]
                 legend.addItem(curve, name + suffix)
         latest = self.session.latest
