@@ -86,9 +86,12 @@ def projection_points(
     # Draw order: plain rows first, then reviewed, then suspects, so the marks stay visible.
     weight = suspect[rows].astype(np.int8) * 2 + reviewed[rows].astype(np.int8)
     rows = rows[np.argsort(weight, kind="stable")]
-    classes = sorted({str(v) for v in labels if v is not None})
-    lookup = {c: i for i, c in enumerate(classes)}
-    code = np.array([lookup.get(str(v), -1) if v is not None else -1 for v in labels[rows]])
+    present = pd.Series(labels)
+    present = present[present.notna()]
+    classes = sorted({str(v) for v in pd.unique(present)})
+    code = pd.Categorical(
+        pd.Series(labels[rows]).map(lambda v: None if v is None else str(v)), categories=classes
+    ).codes
     return ProjectionPoints(
         rows=rows,
         x=np.asarray(coords[rows, 0], dtype=float),

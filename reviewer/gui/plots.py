@@ -34,14 +34,6 @@ SUSPECT_SIZE = 11
 REVIEWED_SIZE = 9
 
 
-def _objects(items: list[Any]) -> np.ndarray:
-    """A 1-D object array of Qt objects, to index by group code (one shared object per group)."""
-    out = np.empty(len(items), dtype=object)
-    for i, item in enumerate(items):
-        out[i] = item
-    return out
-
-
 def _white_plot(widget: pg.PlotWidget) -> pg.PlotItem:
     widget.setBackground("w")
     item = widget.getPlotItem()
@@ -79,9 +71,10 @@ class ProjectionPlot(QWidget):
 
         self.plot_widget = pg.PlotWidget()
         self.plot = _white_plot(self.plot_widget)
-        self.scatter = pg.ScatterPlotItem(pxMode=True, hoverable=False)
-        self.scatter.sigClicked.connect(self._on_clicked)
-        self.plot.addItem(self.scatter)
+        # One scatter item per style group (class x zone x decision), each with a single
+        # brush, pen, symbol and size: pyqtgraph's fast path. Per-point styles in one item
+        # cost ~25 s per million points in setData; a handful of uniform items cost ~1 s.
+        self.groups: list[pg.ScatterPlotItem] = []
         self.lines = {
             level: pg.PlotCurveItem(
                 connect="pairs",
@@ -121,24 +114,42 @@ class ProjectionPlot(QWidget):
         pts = plotdata.session_projection(s, limit=self.limit)
         self.points = pts
         k = len(pts.classes)
-        fills = _objects([palette.brush(palette.GREY, 160), *palette.class_brushes(k, 200)])
-        fill = fills[pts.class_code + 1]
-        plain, inside, wrong = (
+        fills = [palette.brush(palette.GREY, 160), *palette.class_brushes(k, 200)]
+        outlines = [
             pg.mkPen(255, 255, 255, 160, width=0.6),
             pg.mkPen(palette.qcolor(palette.TEXT, 200), width=1.2),
             pg.mkPen(palette.qcolor(palette.INK), width=2.4),
-        )
-        outline = _objects([plain, inside, wrong])[
-            (pts.zone == "inside_margin").astype(int) + 2 * (pts.zone == "wrong_side")
         ]
-        symbol_table = np.array([DECISION_SYMBOLS[name] for name in REVIEW_NAMES], dtype=object)
-        symbols = symbol_table[pts.review.astype(int)]
-        size = np.where(
-            pts.suspect, SUSPECT_SIZE, np.where(pts.review != 0, REVIEWED_SIZE, PLAIN_SIZE)
-        )
-        self.scatter.setData(
-            x=pts.x, y=pts.y, data=pts.rows, brush=fill, pen=outline, symbol=symbols, size=size
-        )
+        zone_kind = (pts.zone == "inside_margin").astype(np.int64) + 2 * (pts.zone == "wrong_side")
+        review = pts.review.astype(np.int64)
+        n_rev = len(REVIEW_NAMES)
+        key = ((pts.class_code + 1) * 3 + zone_kind) * n_rev + review
+        order = np.argsort(key, kind="stable")
+        keys, starts = np.unique(key[order], return_index=True)
+        bounds = [*starts[1:], len(order)]
+        while len(self.groups) < len(keys):
+            item = pg.ScatterPlotItem(pxMode=True, hoverable=False)
+            item.sigClicked.connect(self._on_clicked)
+            self.plot.addItem(item)
+            self.groups.append(item)
+        for item, k_, a, b in zip(self.groups, keys, starts, bounds, strict=False):
+            idx = order[a:b]
+            cls, rest = divmod(int(k_), 3 * n_rev)
+            zk, rv = divmod(rest, n_rev)
+            size = SUSPECT_SIZE if zk else REVIEWED_SIZE if rv else PLAIN_SIZE
+            item.setData(
+                x=pts.x[idx],
+                y=pts.y[idx],
+                data=pts.rows[idx],
+                brush=fills[cls],
+                pen=outlines[zk],
+                symbol=DECISION_SYMBOLS[REVIEW_NAMES[rv]],
+                size=size,
+            )
+            # Suspects on top, then reviewed rows, then the rest.
+            item.setZValue(2 * zk + (1 if rv else 0))
+        for item in self.groups[len(keys) :]:
+            item.setData(x=[], y=[])
         self._draw_boundary()
         self._draw_legend(pts.classes)
         var = pts.variance
@@ -153,7 +164,7 @@ class ProjectionPlot(QWidget):
         note = self.boundary.note if self.boundary else ""
         self.info.setText(
             f"{drawn} Fill: given label; thick outline: wrong_side, thin: inside_margin; "
-            "symbol: ○ unreviewed, □ kept, △ relabelled, × excluded. " + note
+            "symbol: ○ unreviewed, □ kept, ▽ relabelled, × excluded. " + note
         )
         self.plot_widget.setToolTip(note)
         if self.selected_row is not None:
@@ -198,6 +209,19 @@ class ProjectionPlot(QWidget):
             )
             self._legend_samples.append(sample)
             self.legend.addItem(sample, name)
+
+    def drawn_points(self) -> dict[str, np.ndarray]:
+        """Every drawn point across the style groups: x, y, row, size and symbol."""
+        parts: dict[str, list[np.ndarray]] = {k: [] for k in ("x", "y", "row", "size", "symbol")}
+        for item in self.groups:
+            d = item.data
+            parts["x"].append(d["x"])
+            parts["y"].append(d["y"])
+            parts["row"].append(d["data"].astype(np.int64))
+            # A group's style is set once on the item, so its per-point fields stay empty.
+            parts["size"].append(np.full(len(d), float(item.opts["size"])))
+            parts["symbol"].append(np.full(len(d), item.opts["symbol"], dtype=object))
+        return {k: np.concatenate(v) if v else np.empty(0) for k, v in parts.items()}
 
     # ---- selection -------------------------------------------------------------------------
     def _on_clicked(self, _item: Any, points: Any, _ev: Any = None) -> None:

@@ -48,18 +48,18 @@ def panel(qtbot, session):
 
 def test_scatter_shows_the_projection_core_computed(panel, session) -> None:
     coords, _ = session.projection()
-    x, y = panel.projection.scatter.getData()
-    rows = panel.projection.scatter.data["data"].astype(int)
+    drawn = panel.projection.drawn_points()
+    x, y, rows = drawn["x"], drawn["y"], drawn["row"]
     assert sorted(rows) == list(range(session.n_rows))  # 300 rows: nothing sampled away
     np.testing.assert_array_equal(x, coords[rows, 0])
     np.testing.assert_array_equal(y, coords[rows, 1])
     # Suspects are drawn bigger than the rest.
     zones = session.latest.rows["zone"].to_numpy()[rows]
-    sizes = panel.projection.scatter.data["size"]
+    sizes = drawn["size"]
     suspect = np.isin(zones, ["wrong_side", "inside_margin"])
     assert suspect.any() and (sizes[suspect] > sizes[~suspect].max()).all()
-    # Reviewed rows carry their decision's symbol.
-    symbols = panel.projection.scatter.data["symbol"]
+    # Reviewed rows carry their decision's symbol; points keep their given label's colour.
+    symbols = drawn["symbol"]
     kept = int(np.flatnonzero(session.review == 1)[0])
     assert symbols[list(rows).index(kept)] == "s"
 
