@@ -192,3 +192,79 @@ def c_curve(
                 )
             )
     return out
+
+
+# The curve cross-validates len(Cs) x len(gammas) x folds fits; beyond this many rows it runs
+# on a stratified sample so a sweep stays in minutes at a million rows.
+CURVE_ROWS = 5000
+CURVE_GAMMA_FACTORS = (0.25, 1.0, 4.0)
+
+
+def curve_labels(
+    labels: np.ndarray, excluded: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(row positions, class index per row, class names) of the rows a fit would use:
+    labelled and not excluded."""
+    labels = np.asarray(labels, dtype=object)
+    use = np.array([v is not None for v in labels], dtype=bool)
+    if excluded is not None:
+        use &= ~np.asarray(excluded, dtype=bool)
+    rows = np.flatnonzero(use)
+    classes, y_idx = np.unique(labels[rows].astype(str), return_inverse=True)
+    return rows, y_idx, classes
+
+
+def c_curve_for_labels(
+    X: np.ndarray,
+    labels: np.ndarray,
+    excluded: np.ndarray | None,
+    *,
+    kernel: str,
+    Cs: tuple[float, ...] = CURVE_CS,
+    gamma_factors: tuple[float, ...] = CURVE_GAMMA_FACTORS,
+    degree: int = 3,
+    class_weight: str | None = None,
+    folds: int = 5,
+    seed: int = 0,
+    max_rows: int = CURVE_ROWS,
+    progress=None,
+    cancel=None,
+) -> dict:
+    """The C curve over the current labels and exclusions, for a background task.
+
+    Gammas are ``gamma_factors`` times the 'scale' gamma of the rows used (one curve each;
+    the linear kernel has one curve). Returns {"kernel", "candidates", "n_rows", "sampled",
+    "folds"}.
+    """
+    from reviewer.core.errors import InputError
+
+    rows, y_idx, classes = curve_labels(labels, excluded)
+    if len(classes) < 2:
+        raise InputError("the C curve needs at least two classes among the labelled rows")
+    keep = tuning_sample(y_idx, max_rows, seed)
+    Xs, ys = X[rows[keep]], y_idx[keep]
+    counts = np.bincount(ys)
+    folds = int(min(folds, counts[counts > 0].min()))
+    if folds < 2:
+        raise InputError("the C curve needs at least two rows of every class to cross-validate")
+    base = resolve_gamma("scale", Xs)
+    gammas = (base,) if kernel == "linear" else tuple(base * g for g in gamma_factors)
+    candidates = c_curve(
+        Xs,
+        ys,
+        kernel=kernel,
+        Cs=Cs,
+        gammas=gammas,
+        degree=degree,
+        class_weight=class_weight,
+        folds=folds,
+        seed=seed,
+        report=Reporter(progress, cancel),
+    )
+    return {
+        "kernel": kernel,
+        "candidates": candidates,
+        "n_rows": len(keep),
+        "sampled": len(keep) < len(rows),
+        "folds": folds,
+    }

@@ -64,3 +64,56 @@ def compare_fits(before: FitResult, after: FitResult) -> Comparison:
         }
     )
     return Comparison(metrics=metrics, changed_rows=changed)
+
+
+def score_on_reference(
+    session_ids: Any,
+    baseline_rows: pd.DataFrame,
+    latest_rows: pd.DataFrame,
+    reference: pd.DataFrame,
+    id_col: str,
+    label_col: str,
+) -> dict[str, Any]:
+    """Score both fits' suggested labels against trusted labels, rows matched by id.
+
+    Only rows present in the reference, with a trusted label and a suggestion from both fits,
+    are scored, so before and after are measured on the same rows. Returns
+    {"matched", "unmatched_reference", "before": {accuracy, balanced_accuracy},
+    "after": {...}}.
+    """
+    import warnings
+
+    from sklearn.metrics import accuracy_score, balanced_accuracy_score
+
+    from reviewer.core.errors import InputError
+
+    for col in (id_col, label_col):
+        if col not in reference.columns:
+            raise InputError(
+                f"reference file has no column {col!r}; columns: {', '.join(map(str, reference))}"
+            )
+    ref = reference[[id_col, label_col]].dropna()
+    trusted = dict(zip(ref[id_col].astype(str), ref[label_col].astype(str), strict=True))
+    ids = [str(v) for v in np.asarray(session_ids)]
+    sug_b = baseline_rows["suggested_label"].to_numpy()
+    sug_a = latest_rows["suggested_label"].to_numpy()
+    # A fit gives no suggestion for a row it could not score (None, or NaN once stored).
+    has_both = ~pd.isna(sug_b) & ~pd.isna(sug_a)
+    rows = [i for i, rid in enumerate(ids) if rid in trusted and has_both[i]]
+    truth = [trusted[ids[i]] for i in rows]
+    out: dict[str, Any] = {
+        "matched": len(rows),
+        "unmatched_reference": len(set(trusted) - set(ids)),
+    }
+    for name, sug in (("before", sug_b), ("after", sug_a)):
+        pred = [str(sug[i]) for i in rows]
+        with warnings.catch_warnings():
+            # A suggested class the reference never uses is simply wrong on those rows.
+            warnings.simplefilter("ignore", UserWarning)
+            out[name] = {
+                "accuracy": float(accuracy_score(truth, pred)) if rows else float("nan"),
+                "balanced_accuracy": (
+                    float(balanced_accuracy_score(truth, pred)) if rows else float("nan")
+                ),
+            }
+    return out

@@ -1,0 +1,366 @@
+"""The plot panel of the window: projection, slack histogram, C curve, and before against after.
+
+The main window installs it in a dock::
+
+    panel = ViewsPanel(session, bus)
+    window.install_views(panel)
+    # in closeEvent: panel.shutdown()   (stops a running C curve)
+
+It listens to ``bus.fit_changed`` and ``bus.labels_changed`` and redraws the visible view at
+once and the others when they are next shown.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from PySide6.QtCore import QBuffer, QByteArray, QIODevice, Qt
+from PySide6.QtWidgets import (
+    QApplication,
+    QFileDialog,
+    QHeaderView,
+    QInputDialog,
+    QLabel,
+    QPushButton,
+    QSplitter,
+    QTableView,
+    QTableWidget,
+    QTableWidgetItem,
+    QTabWidget,
+    QVBoxLayout,
+    QWidget,
+)
+
+from reviewer.core import plotdata
+from reviewer.core.compare import CAUTION, Comparison, compare_fits, score_on_reference
+from reviewer.core.errors import ReviewerError
+from reviewer.gui import palette
+from reviewer.gui.bus import ReviewBus
+from reviewer.gui.plots import CCurvePlot, ProjectionPlot, SlackHistogramPlot
+from reviewer.gui.table_model import ArrayTableModel, ColumnSpec
+
+
+def _fmt(value: Any, signed: bool = False) -> str:
+    if value is None or (isinstance(value, float) and not np.isfinite(value)):
+        return ""
+    if isinstance(value, (bool, np.bool_)):
+        return str(bool(value))
+    if isinstance(value, (int, np.integer)) or (
+        isinstance(value, (float, np.floating)) and float(value).is_integer() and abs(value) < 1e12
+    ):
+        return f"{int(value):+,}" if signed else f"{int(value):,}"
+    if isinstance(value, (float, np.floating)):
+        return f"{float(value):+.4f}" if signed else f"{float(value):.4f}"
+    return str(value)
+
+
+class CompareView(QWidget):
+    """The baseline fit (source labels) against the latest fit: metrics, rows whose zone
+    changed (click one to select it), the caution, and an optional trusted reference."""
+
+    def __init__(self, session: Any, bus: ReviewBus, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.session = session
+        self.bus = bus
+        self.comparison: Comparison | None = None
+        self.table: pd.DataFrame | None = None
+        self.reference: tuple[pd.DataFrame, str, str] | None = None
+        self.reference_scores: dict | None = None
+
+        self.caution = QLabel(CAUTION)
+        self.caution.setWordWrap(True)
+        self.caution.setStyleSheet(
+            f"QLabel {{ background: {palette.tint(palette.ORANGE, 0.25).name()};"
+            f" color: {palette.TEXT}; padding: 6px; border-radius: 3px; }}"
+        )
+        self.status = QLabel()
+        self.status.setWordWrap(True)
+        self.metrics = QTableWidget(0, 4)
+        self.metrics.setHorizontalHeaderLabels(["metric", "before", "after", "change"])
+        self.metrics.verticalHeader().setVisible(False)
+        self.metrics.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
+        self.metrics.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+
+        self.reference_button = QPushButton("Score on a trusted reference file...")
+        self.reference_button.setToolTip(
+            "A CSV, Parquet or Excel file with an id column and trusted labels; both fits' "
+            "suggested labels are scored against it, matched by id"
+        )
+        self.reference_label = QLabel("No reference file loaded.")
+        self.reference_label.setWordWrap(True)
+        self.reference_label.setAlignment(Qt.AlignmentFlag.AlignTop)
+        side = QWidget()
+        side_layout = QVBoxLayout(side)
+        side_layout.setContentsMargins(0, 0, 0, 0)
+        side_layout.addWidget(self.reference_button)
+        side_layout.addWidget(self.reference_label, 1)
+
+        self.changed_model = ArrayTableModel(parent=self)
+        self.changed_view = QTableView()
+        self.changed_view.setModel(self.changed_model)
+        self.changed_view.setSelectionBehavior(QTableView.SelectionBehavior.SelectRows)
+        self.changed_view.setSelectionMode(QTableView.SelectionMode.SingleSelection)
+        self.changed_view.setSortingEnabled(True)
+        self.changed_view.verticalHeader().setVisible(False)
+        self.changed_view.clicked.connect(self._on_changed_clicked)
+        self.changed_view.activated.connect(self._on_changed_clicked)
+        self.changed_title = QLabel("Rows whose zone changed")
+
+        top = QSplitter(Qt.Orientation.Horizontal)
+        top.addWidget(self.metrics)
+        top.addWidget(side)
+        top.setStretchFactor(0, 3)
+        top.setStretchFactor(1, 2)
+        bottom = QWidget()
+        bl = QVBoxLayout(bottom)
+        bl.setContentsMargins(0, 0, 0, 0)
+        bl.addWidget(self.changed_title)
+        bl.addWidget(self.changed_view, 1)
+        split = QSplitter(Qt.Orientation.Vertical)
+        split.addWidget(top)
+        split.addWidget(bottom)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(2, 2, 2, 2)
+        layout.addWidget(self.caution)
+        layout.addWidget(self.status)
+        layout.addWidget(split, 1)
+        self.reference_button.clicked.connect(self.choose_reference)
+
+    def refresh(self) -> None:
+        s = self.session
+        if s.baseline is None or s.latest is None:
+            self.comparison = None
+            self.table = None
+            self.metrics.setRowCount(0)
+            self.changed_model.set_columns([])
+            self.status.setText("Fit first: the comparison needs a baseline and a latest fit.")
+            self._show_reference()
+            return
+        comp = compare_fits(s.baseline, s.latest)
+        self.comparison = comp
+        self.table = plotdata.metrics_table(comp.metrics)
+        self.metrics.setRowCount(len(self.table))
+        for i, line in enumerate(self.table.itertuples(index=False)):
+            cells = [line.metric, _fmt(line.before), _fmt(line.after), _fmt(line.change, True)]
+            for j, text in enumerate(cells):
+                item = QTableWidgetItem(text)
+                if j:
+                    item.setTextAlignment(
+                        Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
+                    )
+                self.metrics.setItem(i, j, item)
+        self.metrics.resizeColumnsToContents()
+        ch = comp.changed_rows
+        rows = ch["row"].to_numpy()
+        self.changed_model.set_columns(
+            [
+                ColumnSpec("row_id", "row id", np.asarray(s.ids, dtype=object)[rows]),
+                ColumnSpec("zone_before", "zone before", ch["zone_before"].to_numpy(dtype=object)),
+                ColumnSpec("zone_after", "zone after", ch["zone_after"].to_numpy(dtype=object)),
+                ColumnSpec("slack_before", "slack before", ch["slack_before"].to_numpy(float)),
+                ColumnSpec("slack_after", "slack after", ch["slack_after"].to_numpy(float)),
+                ColumnSpec(
+                    "suggested_before",
+                    "suggested before",
+                    ch["suggested_before"].to_numpy(dtype=object),
+                ),
+                ColumnSpec(
+                    "suggested_after",
+                    "suggested after",
+                    ch["suggested_after"].to_numpy(dtype=object),
+                ),
+            ]
+        )
+        self.changed_rows = rows
+        self.changed_view.resizeColumnsToContents()
+        self.changed_title.setText(f"Rows whose zone changed: {len(rows):,} (click to select)")
+        same = s.baseline is s.latest
+        self.status.setText(
+            "Before: the first fit, on the labels as loaded. After: the latest fit"
+            + (" (the same fit: no refit since the first)." if same else ".")
+            + ("" if s.fit_is_current else " Edits made since the latest fit are not in it.")
+        )
+        self._show_reference()
+
+    def _on_changed_clicked(self, index: Any) -> None:
+        if not index.isValid():
+            return
+        view_row = index.row()
+        local = self.changed_model.source_row(view_row)
+        self.bus.row_selected.emit(int(self.changed_rows[local]))
+
+    # ---- trusted reference ---------------------------------------------------------------------
+    def choose_reference(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(
+            self, "Trusted reference file", "", "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls)"
+        )
+        if not path:
+            return
+        from reviewer.core.loading import load_table
+
+        try:
+            frame = load_table(path).frame
+        except ReviewerError as exc:
+            self.reference_label.setText(str(exc))
+            return
+        cols = [str(c) for c in frame.columns]
+        roles = self.session.roles
+        id_guess = cols.index(roles.id) if roles.id in cols else 0
+        id_col, ok = QInputDialog.getItem(self, "Reference", "Id column:", cols, id_guess, False)
+        if not ok:
+            return
+        lab_guess = cols.index(roles.label) if roles.label in cols else min(1, len(cols) - 1)
+        label_col, ok = QInputDialog.getItem(
+            self, "Reference", "Trusted label column:", cols, lab_guess, False
+        )
+        if ok:
+            self.set_reference(frame, id_col, label_col, name=Path(path).name)
+
+    def set_reference(
+        self, frame: pd.DataFrame, id_col: str, label_col: str, *, name: str = "reference"
+    ) -> None:
+        self.reference = (frame, id_col, label_col)
+        self.reference_name = name
+        self._show_reference()
+
+    def _show_reference(self) -> None:
+        s = self.session
+        self.reference_scores = None
+        if self.reference is None:
+            return
+        if s.baseline is None or s.latest is None:
+            self.reference_label.setText("Reference loaded; fit first to score it.")
+            return
+        frame, id_col, label_col = self.reference
+        try:
+            out = score_on_reference(
+                s.ids, s.baseline.rows, s.latest.rows, frame, id_col, label_col
+            )
+        except ReviewerError as exc:
+            self.reference_label.setText(str(exc))
+            return
+        self.reference_scores = out
+        b, a = out["before"], out["after"]
+        self.reference_label.setText(
+            f"<b>Against {self.reference_name}</b> ({out['matched']:,} rows matched by id"
+            + (
+                f"; {out['unmatched_reference']:,} reference ids not in the table"
+                if out["unmatched_reference"]
+                else ""
+            )
+            + ")<br>"
+            "<table cellspacing=4><tr><th></th><th>before</th><th>after</th><th>change</th></tr>"
+            f"<tr><td>accuracy</td><td>{_fmt(b['accuracy'])}</td><td>{_fmt(a['accuracy'])}</td>"
+            f"<td>{_fmt(a['accuracy'] - b['accuracy'], True)}</td></tr>"
+            f"<tr><td>balanced accuracy</td><td>{_fmt(b['balanced_accuracy'])}</td>"
+            f"<td>{_fmt(a['balanced_accuracy'])}</td>"
+            f"<td>{_fmt(a['balanced_accuracy'] - b['balanced_accuracy'], True)}</td></tr>"
+            "</table>"
+        )
+
+
+class ViewsPanel(QTabWidget):
+    """The four views as tabs. Redraws on fit and label changes (the visible tab at once)."""
+
+    def __init__(
+        self,
+        session: Any,
+        bus: ReviewBus,
+        parent: QWidget | None = None,
+        *,
+        projection_limit: int = plotdata.PROJECTION_LIMIT,
+    ) -> None:
+        super().__init__(parent)
+        self.session = session
+        self.bus = bus
+        self.projection = ProjectionPlot(session, bus, limit=projection_limit)
+        self.histogram = SlackHistogramPlot(session, bus)
+        self.c_curve = CCurvePlot(session, bus)
+        self.compare = CompareView(session, bus)
+        self.addTab(self.projection, "Projection")
+        self.addTab(self.histogram, "Slack")
+        self.addTab(self.c_curve, "C curve")
+        self.addTab(self.compare, "Before and after")
+        self.setTabToolTip(0, "Every row on the first two principal components of the features")
+        self.setTabToolTip(1, "How many rows have each slack; drag the line to filter the list")
+        self.setTabToolTip(2, "Cross-validated scores across C: pick a C to refit with")
+        self.setTabToolTip(3, "The first fit against the latest one")
+        self._stale: set[int] = set(range(self.count()))
+        self.currentChanged.connect(self._on_tab)
+        bus.fit_changed.connect(self.mark_stale)
+        bus.labels_changed.connect(self.mark_stale)
+        self.refresh()
+
+    def views(self) -> list[QWidget]:
+        return [self.widget(i) for i in range(self.count())]
+
+    def refresh(self) -> None:
+        """Redraw every view now."""
+        for view in self.views():
+            view.refresh()
+        self._stale.clear()
+
+    def mark_stale(self) -> None:
+        # Redrawing hidden views at a million rows costs seconds for nothing on screen.
+        self._stale = set(range(self.count()))
+        self._on_tab(self.currentIndex())
+
+    def _on_tab(self, index: int) -> None:
+        if index in self._stale:
+            self._stale.discard(index)
+            self.widget(index).refresh()
+
+    def shutdown(self) -> None:
+        """Stop background work (the C curve); call from the window's closeEvent."""
+        self.c_curve.shutdown()
+
+
+def widget_png(widget: QWidget) -> bytes:
+    """The widget as it would be drawn, as PNG bytes (works offscreen)."""
+    pixmap = widget.grab()
+    data = QByteArray()
+    buffer = QBuffer(data)
+    buffer.open(QIODevice.OpenModeFlag.WriteOnly)
+    pixmap.save(buffer, "PNG")
+    buffer.close()
+    return bytes(data.data())
+
+
+def render_views_png(
+    session: Any, panel: ViewsPanel | None = None, *, size: tuple[int, int] = (960, 680)
+) -> dict[str, bytes]:
+    """Caption -> PNG of each view, for ``write_summary_html``'s ``images``.
+
+    The views are drawn in a hidden panel of ``size`` pixels, so the window is left as it is.
+    Pass the window's panel to include the C curve it has computed (a sweep takes a while,
+    so none is started here); without one the C curve is left out.
+    """
+    if QApplication.instance() is None:
+        raise RuntimeError("render_views_png needs a QApplication")
+    shadow = ViewsPanel(session, ReviewBus())
+    shadow.setAttribute(Qt.WidgetAttribute.WA_DontShowOnScreen, True)
+    shadow.resize(*size)
+    shadow.show()
+    if panel is not None and panel.c_curve.result is not None:
+        shadow.c_curve.set_result(panel.c_curve.result)
+    shots = [
+        ("Projection of every row on two principal components", shadow.projection),
+        ("Slack histogram", shadow.histogram),
+    ]
+    if shadow.c_curve.series:
+        shots.append(("Cross-validated C curve", shadow.c_curve))
+    if session.baseline is not None and session.latest is not None:
+        shots.append(("Before and after", shadow.compare))
+    out: dict[str, bytes] = {}
+    try:
+        for caption, view in shots:
+            shadow.setCurrentWidget(view)
+            QApplication.processEvents()
+            out[caption] = widget_png(view)
+    finally:
+        shadow.hide()
+        shadow.deleteLater()
+    return out

@@ -1,0 +1,232 @@
+"""The plot views draw what core computed and talk to the window through the bus."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from PySide6.QtCore import QPointF, Qt
+from PySide6.QtTest import QTest
+
+from reviewer.core import plotdata
+from reviewer.core.compare import compare_fits
+from reviewer.core.engine import FitSettings
+from reviewer.core.export import write_summary_html
+from reviewer.core.session import ReviewSession
+from reviewer.gui.bus import ReviewBus
+from reviewer.gui.views import ViewsPanel, _fmt, render_views_png
+
+DEMO = "demo_data/coffee_lots.csv"
+
+
+@pytest.fixture(scope="module")
+def session(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("views")
+    pd.read_csv(DEMO).head(300).to_csv(folder / "lots.csv", index=False)
+    s = ReviewSession.open(folder / "lots.csv", label="grade", id_column="lot_id")
+    s.fit(FitSettings(kernel="rbf", C=10, folds=3))
+    wrong = np.flatnonzero(s.latest.rows["zone"].to_numpy() == "wrong_side")
+    s.relabel_to_suggestion(wrong[:3])
+    s.keep([int(wrong[3])])
+    s.exclude([int(wrong[4])])
+    s.fit()
+    yield s
+    s.close()
+
+
+@pytest.fixture
+def panel(qtbot, session):
+    bus = ReviewBus()
+    p = ViewsPanel(session, bus)
+    qtbot.addWidget(p)
+    p.resize(900, 650)
+    p.show()
+    qtbot.waitExposed(p)
+    yield p
+    p.shutdown()
+
+
+def test_scatter_shows_the_projection_core_computed(panel, session) -> None:
+    coords, _ = session.projection()
+    drawn = panel.projection.drawn_points()
+    x, y, rows = drawn["x"], drawn["y"], drawn["row"]
+    assert sorted(rows) == list(range(session.n_rows))  # 300 rows: nothing sampled away
+    np.testing.assert_array_equal(x, coords[rows, 0])
+    np.testing.assert_array_equal(y, coords[rows, 1])
+    # Suspects are drawn bigger than the rest.
+    zones = session.latest.rows["zone"].to_numpy()[rows]
+    sizes = drawn["size"]
+    suspect = np.isin(zones, ["wrong_side", "inside_margin"])
+    assert suspect.any() and (sizes[suspect] > sizes[~suspect].max()).all()
+    # Reviewed rows carry their decision's symbol; points keep their given label's colour.
+    symbols = drawn["symbol"]
+    kept = int(np.flatnonzero(session.review == 1)[0])
+    assert symbols[list(rows).index(kept)] == "s"
+
+
+def test_clicking_a_point_selects_its_row(qtbot, panel, session) -> None:
+    coords, _ = session.projection()
+    # The most isolated point, so the click cannot land on a neighbour.
+    d = np.linalg.norm(coords[:, None, :] - coords[None, :, :], axis=2)
+    np.fill_diagonal(d, np.inf)
+    row = int(np.argmax(d.min(axis=1)))
+    proj = panel.projection
+    vb = proj.plot.getViewBox()
+    scene = vb.mapViewToScene(QPointF(*proj.point_position(row)))
+    widget_pos = proj.plot_widget.mapFromScene(scene)
+    with qtbot.waitSignal(panel.bus.row_selected, timeout=2000) as blocker:
+        QTest.mouseClick(proj.plot_widget.viewport(), Qt.MouseButton.LeftButton, pos=widget_pos)
+    assert blocker.args == [row]
+
+
+def test_a_row_selected_elsewhere_is_ringed(panel, session) -> None:
+    coords, _ = session.projection()
+    panel.bus.row_selected.emit(17)
+    x, y = panel.projection.ring.getData()
+    assert (x[0], y[0]) == (coords[17, 0], coords[17, 1])
+
+
+def test_histogram_bars_are_the_core_bins(panel, session) -> None:
+    h = panel.histogram
+    bars = h.bars.opts
+    ref = plotdata.slack_histogram(session.latest.rows["slack"].to_numpy())
+    np.testing.assert_array_equal(bars["height"], ref.counts)
+    np.testing.assert_array_equal(bars["x0"], ref.edges[:-1])
+    # Held-out slack, one class.
+    h.source_combo.setCurrentIndex(h.source_combo.findData("heldout_slack"))
+    h.class_combo.setCurrentIndex(h.class_combo.findData("premium"))
+    mask = np.array([v == "premium" for v in session.labels])
+    ref = plotdata.slack_histogram(session.latest.rows["heldout_slack"].to_numpy(), mask)
+    np.testing.assert_array_equal(h.bars.opts["height"], ref.counts)
+    assert (
+        ref.counts.sum()
+        < plotdata.slack_histogram(session.latest.rows["heldout_slack"].to_numpy()).counts.sum()
+    )
+
+
+def test_dragging_the_threshold_filters_rows_above_it(qtbot, panel, session) -> None:
+    h = panel.histogram
+    line = h.threshold
+    with qtbot.waitSignal(panel.bus.rows_filter, timeout=2000) as blocker:
+        # What a drag ends with: the line moved, then "position change finished".
+        line.setValue(0.4)
+        line.sigPositionChangeFinished.emit(line)
+    slack = session.latest.rows["slack"].to_numpy()
+    np.testing.assert_array_equal(blocker.args[0], slack > 0.4)
+    assert 0 < blocker.args[0].sum() < session.n_rows
+    with qtbot.waitSignal(panel.bus.rows_filter, timeout=2000) as blocker:
+        h.clear_button.click()
+    assert blocker.args == [None]
+
+
+def test_compare_view_shows_compare_fits_numbers(qtbot, panel, session) -> None:
+    panel.setCurrentWidget(panel.compare)
+    comp = compare_fits(session.baseline, session.latest)
+    table = panel.compare.metrics
+    shown = {
+        table.item(i, 0).text(): [table.item(i, j).text() for j in (1, 2, 3)]
+        for i in range(table.rowCount())
+    }
+    assert len(shown) == len(comp.metrics)
+    b, a = comp.metrics["rows wrong_side"]
+    assert shown["rows wrong_side"] == [str(b), str(a), f"{a - b:+d}"]
+    b, a = comp.metrics["held-out accuracy"]
+    assert shown["held-out accuracy"][:2] == [f"{b:.4f}", f"{a:.4f}"]
+    assert b != a  # the edits changed the fit, so the table has something to show
+    model = panel.compare.changed_model
+    assert model.rowCount() == len(comp.changed_rows) > 0
+    # Clicking a changed row selects that table row.
+    index = model.index(0, 0)
+    want = int(comp.changed_rows["row"].to_numpy()[model.source_row(0)])
+    with qtbot.waitSignal(panel.bus.row_selected, timeout=2000) as blocker:
+        panel.compare.changed_view.clicked.emit(index)
+    assert blocker.args == [want]
+    assert "flatters" in panel.compare.caution.text()
+
+
+def test_reference_scores_are_shown(panel, session) -> None:
+    ids = [str(v) for v in session.ids]
+    truth = session.source_labels.astype(str)
+    reference = pd.DataFrame({"lot_id": ids[:100], "truth": truth[:100]})
+    panel.compare.set_reference(reference, "lot_id", "truth")
+    out = panel.compare.reference_scores
+    assert out["matched"] == 100
+    sug = session.baseline.rows["suggested_label"].to_numpy()[:100].astype(str)
+    assert out["before"]["accuracy"] == pytest.approx(np.mean(sug == truth[:100]))
+    assert _fmt(out["before"]["accuracy"]) in panel.compare.reference_label.text()
+
+
+def test_c_curve_runs_in_the_background_and_a_click_asks_for_a_refit(qtbot, panel, session):
+    c = panel.c_curve
+    c.Cs = (0.1, 1.0, 10.0)
+    c.kernel_combo.setCurrentText("linear")
+    with qtbot.waitSignal(c.runner.finished, timeout=120_000):
+        c.run_button.click()
+    assert len(c.series) == 1 and list(c.series[0].C) == [0.1, 1.0, 10.0]
+    assert c.run_button.isEnabled()
+    # The chosen C of the latest fit is marked.
+    assert c.chosen_lines and c.chosen_lines[0].value() == pytest.approx(np.log10(10.0))
+    series, _name, curve = next(x for x in c.curves if x[1] == "accuracy")
+    np.testing.assert_array_equal(curve.getData()[1], series.accuracy)
+    spot = curve.scatter.points()[2]
+    with qtbot.waitSignal(panel.bus.refit_requested, timeout=2000) as blocker:
+        curve.sigPointsClicked.emit(curve, [spot], None)
+    settings = blocker.args[0]
+    assert (settings.kernel, settings.C) == ("linear", 10.0)
+    assert settings.folds == session.settings.folds and settings.seed == session.settings.seed
+
+
+def test_c_curve_can_be_cancelled(qtbot, panel) -> None:
+    c = panel.c_curve
+    c.kernel_combo.setCurrentText("rbf")
+    with qtbot.waitSignal(c.runner.cancelled, timeout=120_000):
+        c.run_button.click()
+        c.cancel_button.click()
+    assert "cancelled" in c.status.text() and c.run_button.isEnabled()
+
+
+def test_panel_redraws_after_a_new_fit(qtbot, panel, session) -> None:
+    panel.setCurrentWidget(panel.histogram)
+    before = panel.histogram.bars.opts["height"].copy()
+    session.fit(FitSettings(kernel="rbf", C=0.5, folds=3))
+    panel.bus.fit_changed.emit()
+    after = plotdata.slack_histogram(session.latest.rows["slack"].to_numpy()).counts
+    np.testing.assert_array_equal(panel.histogram.bars.opts["height"], after)
+    assert not np.array_equal(before, after)
+    session.fit(FitSettings(kernel="rbf", C=10, folds=3))
+
+
+def test_views_render_to_png_for_the_html_summary(qtbot, session, tmp_path) -> None:
+    images = render_views_png(session)
+    assert len(images) == 3  # no C curve without a sweep
+    assert all(png.startswith(b"\x89PNG") and len(png) > 5000 for png in images.values())
+    out = write_summary_html(
+        {"source_path": "lots.csv", "source_sha256": "0" * 64, "images": images},
+        tmp_path / "summary.html",
+    )
+    assert out.read_text().count("data:image/png;base64,") == 3
+
+
+def test_boundary_is_drawn_for_a_two_feature_table(qtbot, tmp_path) -> None:
+    rng = np.random.default_rng(5)
+    n = 120
+    frame = pd.DataFrame(
+        {
+            "id": [f"r{i}" for i in range(n)],
+            "width": np.r_[rng.normal(-1, 1, n // 2), rng.normal(1.5, 1, n // 2)],
+            "depth": np.r_[rng.normal(0, 1, n // 2), rng.normal(1, 1, n // 2)],
+            "kind": ["a"] * (n // 2) + ["b"] * (n // 2),
+        }
+    )
+    frame.to_csv(tmp_path / "two.csv", index=False)
+    with ReviewSession.open(tmp_path / "two.csv", label="kind", id_column="id") as s:
+        s.fit(FitSettings(kernel="rbf", C=1, folds=0))
+        p = ViewsPanel(s, ReviewBus())
+        qtbot.addWidget(p)
+        proj = p.projection
+        assert proj.boundary.exact
+        coords, _ = s.projection()
+        ref = plotdata.boundary_in_projection(s.latest.model, s.X, coords)
+        x, _ = proj.lines[0.0].getData()
+        np.testing.assert_array_equal(x, ref.segments[0.0][:, [0, 2]].ravel())
+        assert len(x) > 0
