@@ -242,7 +242,7 @@ def render_md(data: dict) -> str:
     for r in data["linear"]:
         hinge = "not run"
         if "hinge_s" in r:
-            hinge = f"{r['hinge_s']:.2f}, primal +{r['hinge_primal_excess']:.1e}"
+            hinge = f"{r['hinge_s']:.2f}, primal {r['hinge_primal_excess']:+.1e} vs ours"
             if r["hinge_hit_limit"]:
                 hinge += " (hit iteration limit)"
         lines.append(
