@@ -144,7 +144,8 @@ def main(argv: list[str] | None = None) -> int:
         tool = next(r for r in rows if r["rows"] == n and r["method"] == "tool")
         base = next(r for r in rows if r["rows"] == n and r["method"] == "sklearn")
         lines.append(
-            f"| {n:,} | {tool['seconds']:.2f} | {base['seconds']:.2f} | {tool['seconds'] / base['seconds']:.2f} "
+            f"| {n:,} | {tool['seconds']:.2f} | {base['seconds']:.2f} "
+            f"| {tool['seconds'] / base['seconds']:.2f} "
             f"| {tool['peak_mb']:.0f} | {base['peak_mb']:.0f} | {tool['matrix_mb']:.0f} "
             f"| {tool['peak_mb'] / tool['matrix_mb']:.1f} |"
         )
