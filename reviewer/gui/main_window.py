@@ -257,12 +257,14 @@ class MainWindow(QMainWindow):
             for i in range(1, 10)
         ]
         self.act_undo = a("&Undo", self.undo, QKeySequence.StandardKey.Undo, "undo")
-        self.act_redo = a("&Redo", self.redo, [QKeySequence.StandardKey.Redo, "Ctrl+Y"], "redo")
+        self.act_redo = a("&Redo", self.redo, None, "redo")
         # QKeySequence(StandardKey) may expand to several sequences: keep them all.
         self.act_undo.setShortcuts(QKeySequence.keyBindings(QKeySequence.StandardKey.Undo))
-        self.act_redo.setShortcuts(
-            [*QKeySequence.keyBindings(QKeySequence.StandardKey.Redo), QKeySequence("Ctrl+Y")]
-        )
+        redo_keys = list(QKeySequence.keyBindings(QKeySequence.StandardKey.Redo))
+        for extra in ("Ctrl+Y", "Ctrl+Shift+Z"):
+            if QKeySequence(extra) not in redo_keys:
+                redo_keys.append(QKeySequence(extra))
+        self.act_redo.setShortcuts(redo_keys)
         self.act_refit = a("Re&fit", self.refit, ["F5", "Ctrl+R"], "refit", "Refit (F5)")
         self.act_cancel = a("Cancel fit", self.cancel_fit, "Esc")
         self.act_find = a("Find id", self._focus_find, "Ctrl+F")
