@@ -120,8 +120,10 @@ class MainWindow(QMainWindow):
         placeholder.setAlignment(Qt.AlignmentFlag.AlignCenter)
         placeholder.setObjectName("hint")
         self.views_slot.setWidget(placeholder)
-        self.views_slot.setMinimumWidth(280)
         self.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, self.views_slot)
+        self.resizeDocks(
+            [self.settings_dock, self.views_slot], [250, 240], Qt.Orientation.Horizontal
+        )
 
         self._build_status()
         self._build_actions()

@@ -84,7 +84,7 @@ class RowPanel(QWidget):
         outer.addLayout(facts, 2)
 
         feats = QVBoxLayout()
-        feats.addWidget(QLabel("Features beside the class's typical values"))
+        feats.addWidget(QLabel("Features beside the class's typical values (tinted: unusual)"))
         self.features_model = ArrayTableModel()
         self.features = _small_table("features_table")
         self.features.setModel(self.features_model)
@@ -92,7 +92,7 @@ class RowPanel(QWidget):
         outer.addLayout(feats, 4)
 
         nbrs = QVBoxLayout()
-        nbrs.addWidget(QLabel("Nearest labelled rows (click to go there)"))
+        nbrs.addWidget(QLabel("Nearest labelled rows (tinted: another label; click to go)"))
         self.neighbours_model = ArrayTableModel()
         self.neighbours = _small_table("neighbours_table")
         self.neighbours.setModel(self.neighbours_model)

@@ -112,7 +112,11 @@ class SettingsPanel(QWidget):
         if not used:
             self.used.setText("No fit yet.")
             return
-        parts = [f"kernel {used.get('kernel')}", f"C {used.get('C')}"]
+
+        def num(v: object) -> str:
+            return f"{v:.4g}" if isinstance(v, (int, float)) else str(v)
+
+        parts = [f"kernel {used.get('kernel')}", f"C {num(used.get('C'))}"]
         if used.get("kernel") != "linear":
-            parts.append(f"gamma {used.get('gamma')}")
+            parts.append(f"gamma {num(used.get('gamma'))}")
         self.used.setText("Latest fit: " + ", ".join(parts))

@@ -30,7 +30,7 @@ def test_dialog_shows_guesses(qtbot, data):
     assert dlg.label_combo.currentText() == "grade"
     assert dlg.id_combo.currentText() in ("lot_id", NO_ID)
     assert dlg.head_model.rowCount() == 20
-    label, ident, overrides = dlg.choices()
+    label, _ident, overrides = dlg.choices()
     assert label == "grade" and overrides == {}
 
 
