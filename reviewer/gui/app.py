@@ -1,0 +1,68 @@
+"""Start the window: ``run_window`` is what ``margin-reviewer demo`` and ``open`` call."""
+
+from __future__ import annotations
+
+import shutil
+import sys
+from pathlib import Path
+
+from PySide6.QtWidgets import QApplication
+
+from reviewer.core.session import APP_NAME
+from reviewer.gui import resources
+from reviewer.gui.main_window import MainWindow
+
+
+def demo_copy(source: Path, folder: Path | None = None) -> Path:
+    """The per-user copy of a demo file (made on first use), so its session never lands in the
+    repository and the demo resumes where it was left."""
+    if folder is None:
+        from platformdirs import user_data_dir
+
+        folder = Path(user_data_dir(APP_NAME, appauthor=False)) / "demo"
+    folder.mkdir(parents=True, exist_ok=True)
+    target = folder / Path(source).name
+    if not target.exists():
+        shutil.copy2(source, target)
+    return target
+
+
+def make_app() -> QApplication:
+    app = QApplication.instance()
+    if not isinstance(app, QApplication):
+        app = QApplication(sys.argv[:1])
+        app.setApplicationName("Margin Reviewer")
+        app.setOrganizationName(APP_NAME)
+    app.setStyleSheet(resources.load_style_sheet())
+    return app
+
+
+def build_window(
+    path: Path | None,
+    *,
+    label: str | None = None,
+    id_column: str | None = None,
+    session: str | None = None,
+    demo: bool = False,
+) -> MainWindow:
+    """The window with ``path`` opened as asked (roles dialog when no label is given)."""
+    window = MainWindow()
+    if path is not None:
+        path = demo_copy(Path(path)) if demo else Path(path)
+        window.open_path(path, label=label, id_column=id_column, session_path=session)
+    return window
+
+
+def run_window(
+    path: Path | None,
+    *,
+    label: str | None = None,
+    id_column: str | None = None,
+    session: str | None = None,
+    demo: bool = False,
+) -> int:
+    """Open the review window and run until it closes; returns the exit code."""
+    app = make_app()
+    window = build_window(path, label=label, id_column=id_column, session=session, demo=demo)
+    window.show()
+    return int(app.exec())

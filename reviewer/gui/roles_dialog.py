@@ -1,0 +1,146 @@
+"""The column-roles dialog: which column holds the label, which the row id, and how each
+other column is used, chosen over a preview of the first rows."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+from PySide6.QtWidgets import (
+    QComboBox,
+    QDialog,
+    QDialogButtonBox,
+    QFormLayout,
+    QGridLayout,
+    QGroupBox,
+    QLabel,
+    QScrollArea,
+    QTableView,
+    QVBoxLayout,
+    QWidget,
+)
+
+from reviewer.core.roles import KINDS
+from reviewer.core.session import TablePreview
+from reviewer.gui.table_model import ArrayTableModel, ColumnSpec
+
+NO_ID = "(none: rows are matched by position)"
+
+
+def _remembered_kinds(remembered: dict[str, Any] | None) -> dict[str, str]:
+    roles = (remembered or {}).get("roles") or {}
+    kinds: dict[str, str] = {}
+    for col in roles.get("numeric", []):
+        kinds[col] = "numeric"
+    for col in roles.get("categorical", []):
+        kinds[col] = "categorical"
+    for col in roles.get("ignored", {}):
+        kinds[col] = "ignore"
+    return kinds
+
+
+class RolesDialog(QDialog):
+    """Shows ``preview`` and returns the reviewer's choices through :meth:`choices`."""
+
+    def __init__(self, preview: TablePreview, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.preview = preview
+        self.setWindowTitle(f"Column roles: {preview.source.path.name}")
+        self.resize(900, 640)
+        remembered = preview.remembered or {}
+        layout = QVBoxLayout(self)
+
+        intro = QLabel(
+            "Choose the column with the labels to review and, if there is one, the column "
+            "that names each row. Every other column is a feature: numeric, categorical, "
+            "or left out."
+            + ("  Choices saved in this file's session are filled in." if remembered else "")
+        )
+        intro.setWordWrap(True)
+        layout.addWidget(intro)
+
+        head = preview.head
+        self.head_model = ArrayTableModel(
+            [
+                ColumnSpec(
+                    f"c{i}", str(c), np.asarray(head[c].astype(object).to_numpy(), dtype=object)
+                )
+                for i, c in enumerate(preview.columns)
+            ]
+        )
+        table = QTableView()
+        table.setModel(self.head_model)
+        table.setObjectName("preview_table")
+        table.verticalHeader().setDefaultSectionSize(22)
+        table.setMaximumHeight(220)
+        layout.addWidget(table)
+
+        form = QFormLayout()
+        self.label_combo = QComboBox()
+        self.label_combo.addItems(preview.columns)
+        label = remembered.get("label") or preview.guessed_label
+        if label in preview.columns:
+            self.label_combo.setCurrentText(label)
+        self.id_combo = QComboBox()
+        self.id_combo.addItems([NO_ID, *preview.columns])
+        ident = remembered.get("id") if remembered else preview.guessed_id
+        if ident in preview.columns:
+            self.id_combo.setCurrentText(ident)
+        form.addRow("Label column", self.label_combo)
+        form.addRow("Row id column", self.id_combo)
+        layout.addLayout(form)
+
+        box = QGroupBox("Features")
+        grid = QGridLayout(box)
+        saved = _remembered_kinds(remembered)
+        self.kind_combos: dict[str, QComboBox] = {}
+        for i, col in enumerate(preview.columns):
+            kind, reason = preview.kinds.get(col, ("ignore", ""))
+            combo = QComboBox()
+            combo.addItems(list(KINDS))
+            combo.setCurrentText(saved.get(col, kind))
+            self.kind_combos[col] = combo
+            name = QLabel(str(col))
+            note = QLabel(reason)
+            note.setObjectName("hint")
+            grid.addWidget(name, i, 0)
+            grid.addWidget(combo, i, 1)
+            grid.addWidget(note, i, 2)
+        grid.setColumnStretch(2, 1)
+        scroll = QScrollArea()
+        scroll.setWidgetResizable(True)
+        scroll.setWidget(box)
+        layout.addWidget(scroll, 1)
+
+        buttons = QDialogButtonBox(
+            QDialogButtonBox.StandardButton.Ok | QDialogButtonBox.StandardButton.Cancel
+        )
+        buttons.button(QDialogButtonBox.StandardButton.Ok).setText("Open")
+        buttons.accepted.connect(self.accept)
+        buttons.rejected.connect(self.reject)
+        layout.addWidget(buttons)
+        self.buttons = buttons
+
+        self.label_combo.currentTextChanged.connect(self._sync_enabled)
+        self.id_combo.currentTextChanged.connect(self._sync_enabled)
+        self._sync_enabled()
+
+    def _sync_enabled(self) -> None:
+        # The label and id columns are not features, so their kind choice does not apply.
+        chosen = {self.label_combo.currentText(), self.id_combo.currentText()}
+        for col, combo in self.kind_combos.items():
+            combo.setEnabled(col not in chosen)
+
+    def choices(self) -> tuple[str, str | None, dict[str, str]]:
+        """(label column, id column or None, overrides for the kinds that differ from the guess)."""
+        label = self.label_combo.currentText()
+        ident = self.id_combo.currentText()
+        ident = None if ident == NO_ID else ident
+        overrides: dict[str, str] = {}
+        for col, combo in self.kind_combos.items():
+            if col in (label, ident):
+                continue
+            guessed = self.preview.kinds.get(col, ("ignore", ""))[0]
+            if combo.currentText() != guessed:
+                overrides[col] = combo.currentText()
+        return label, ident, overrides

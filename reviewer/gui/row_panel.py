@@ -1,0 +1,201 @@
+"""The current row in context: its fit values, its features beside its class's typical values,
+its nearest labelled neighbours and its own edit history. Everything comes from the session."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QColor
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QFormLayout,
+    QHBoxLayout,
+    QLabel,
+    QPlainTextEdit,
+    QTableView,
+    QVBoxLayout,
+    QWidget,
+)
+
+from reviewer.core.session import ReviewSession
+from reviewer.gui import palette
+from reviewer.gui.bus import ReviewBus
+from reviewer.gui.table_model import SOURCE_ROW_ROLE, ArrayTableModel, ColumnSpec
+
+_FIT_FIELDS = (
+    ("margin", "Margin"),
+    ("slack", "Slack"),
+    ("heldout_margin", "Held-out margin"),
+    ("heldout_slack", "Held-out slack"),
+    ("alpha", "Alpha"),
+    ("zone", "Zone"),
+    ("support", "Support"),
+    ("suggested_label", "Suggested label"),
+)
+
+
+def _text(value: object) -> str:
+    if value is None:
+        return "–"
+    if isinstance(value, (float, np.floating)):
+        return "–" if math.isnan(value) else f"{value:.3f}"
+    return str(value).replace("_", " ")
+
+
+def _small_table(name: str) -> QTableView:
+    view = QTableView()
+    view.setObjectName(name)
+    view.verticalHeader().hide()
+    view.verticalHeader().setDefaultSectionSize(22)
+    view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+    view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+    view.horizontalHeader().setStretchLastSection(True)
+    view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+    return view
+
+
+class RowPanel(QWidget):
+    """Follows ``bus.row_selected``; clicking a neighbour emits it."""
+
+    def __init__(self, bus: ReviewBus, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setObjectName("row_panel")
+        self.bus = bus
+        self.session: ReviewSession | None = None
+        self.row: int | None = None
+        outer = QHBoxLayout(self)
+        outer.setContentsMargins(6, 6, 6, 6)
+
+        facts = QVBoxLayout()
+        self.title = QLabel("No row selected")
+        self.title.setObjectName("row_title")
+        facts.addWidget(self.title)
+        form = QFormLayout()
+        self.values: dict[str, QLabel] = {}
+        for key, text in (("label", "Given label"), ("review", "Review state"), *_FIT_FIELDS):
+            lab = QLabel("–")
+            lab.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+            self.values[key] = lab
+            form.addRow(text, lab)
+        facts.addLayout(form)
+        facts.addStretch(1)
+        outer.addLayout(facts, 2)
+
+        feats = QVBoxLayout()
+        feats.addWidget(QLabel("Features beside the class's typical values (tinted: unusual)"))
+        self.features_model = ArrayTableModel()
+        self.features = _small_table("features_table")
+        self.features.setModel(self.features_model)
+        feats.addWidget(self.features)
+        outer.addLayout(feats, 4)
+
+        nbrs = QVBoxLayout()
+        nbrs.addWidget(QLabel("Nearest labelled rows (tinted: another label; click to go)"))
+        self.neighbours_model = ArrayTableModel()
+        self.neighbours = _small_table("neighbours_table")
+        self.neighbours.setModel(self.neighbours_model)
+        self.neighbours.clicked.connect(self._neighbour_clicked)
+        nbrs.addWidget(self.neighbours)
+        outer.addLayout(nbrs, 3)
+
+        hist = QVBoxLayout()
+        hist.addWidget(QLabel("This row's history"))
+        self.history = QPlainTextEdit()
+        self.history.setObjectName("history")
+        self.history.setReadOnly(True)
+        hist.addWidget(self.history)
+        outer.addLayout(hist, 1)
+
+        bus.row_selected.connect(self.show_row)
+
+    def set_session(self, session: ReviewSession | None) -> None:
+        self.session = session
+        self.row = None
+        self.refresh()
+
+    def show_row(self, row: int) -> None:
+        self.row = int(row)
+        self.refresh()
+
+    def refresh(self) -> None:
+        s, row = self.session, self.row
+        if s is None or row is None or not 0 <= row < s.n_rows:
+            self.title.setText("No row selected")
+            for lab in self.values.values():
+                lab.setText("–")
+            self.features_model.set_columns([])
+            self.neighbours_model.set_columns([])
+            self.history.setPlainText("")
+            return
+        self.title.setText(f"Row {row}   ·   {s.roles.id or 'id'} {s.ids[row]}")
+        from reviewer.core.editlog import REVIEW_NAMES
+
+        self.values["label"].setText(_text(s.labels[row]))
+        self.values["review"].setText(REVIEW_NAMES[int(s.review[row])])
+        fit = s.latest.rows.iloc[row] if s.latest is not None else None
+        for key, _ in _FIT_FIELDS:
+            self.values[key].setText(_text(fit[key]) if fit is not None else "–")
+        self._show_features(s, row)
+        self._show_neighbours(s, row)
+        lines = []
+        for e in s.row_history(row):
+            what = e.action
+            if e.action == "relabel":
+                i = e.rows.index(row) if row in e.rows else 0
+                what = f"relabel {e.before[i]} → {e.after[i]}" if e.after else what
+            extra = "; ".join(x for x in (e.reason, e.note) if x)
+            lines.append(
+                f"#{e.seq} {e.time[:19].replace('T', ' ')}  {what}"
+                + (f"  ({extra})" if extra else "")
+            )
+        self.history.setPlainText("\n".join(lines) or "No decisions yet.")
+
+    def _show_features(self, s: ReviewSession, row: int) -> None:
+        prof = s.feature_profile(row)
+        unusual = prof["unusual"].to_numpy(dtype=bool)
+        self.features_model.set_columns(
+            [
+                ColumnSpec("feature", "Feature", prof["feature"].to_numpy(dtype=object)),
+                ColumnSpec("value", "This row", prof["value"].astype(object).to_numpy()),
+                ColumnSpec(
+                    "typical", "Class typical", prof["class_typical"].astype(object).to_numpy()
+                ),
+                ColumnSpec("distance", "Distance", prof["distance"].to_numpy(dtype=float), 2),
+                ColumnSpec(
+                    "unusual",
+                    "",
+                    np.where(unusual, "unusual", "").astype(object),
+                ),
+            ]
+        )
+        self.features_model.set_row_style(
+            unusual.astype(np.int8),
+            {1: (palette.tint(palette.ORANGE, 0.3), QColor(palette.TEXT))},
+        )
+        self.features.resizeColumnsToContents()
+
+    def _show_neighbours(self, s: ReviewSession, row: int) -> None:
+        nb = s.neighbours(row)
+        self.neighbours_model.set_columns(
+            [
+                ColumnSpec("row_id", "Id", nb["row_id"].astype(object).to_numpy()),
+                ColumnSpec("label", "Label", nb["label"].astype(object).to_numpy()),
+                ColumnSpec("slack", "Slack", nb["slack"].to_numpy(dtype=float), 2),
+                ColumnSpec("distance", "Distance", nb["distance"].to_numpy(dtype=float), 2),
+                ColumnSpec("row", "Row", nb["row"].to_numpy(dtype=np.int64)),
+            ]
+        )
+        mine = s.labels[row]
+        other = np.array([lab != mine for lab in nb["label"]], dtype=np.int8)
+        self.neighbours_model.set_row_style(
+            other, {1: (palette.tint(palette.SKY, 0.25), QColor(palette.TEXT))}
+        )
+        self.neighbours.resizeColumnsToContents()
+
+    def _neighbour_clicked(self, index) -> None:
+        m = self.neighbours_model
+        src = m.data(index, SOURCE_ROW_ROLE)
+        row = int(m.column_spec("row").values[src])
+        self.bus.row_selected.emit(row)

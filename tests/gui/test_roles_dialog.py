@@ -1,0 +1,78 @@
+"""The column-roles dialog: the reviewer's choices reach ReviewSession.open."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+from PySide6.QtCore import QSettings, QTimer
+from PySide6.QtWidgets import QApplication, QDialogButtonBox
+
+from reviewer.core.session import ReviewSession
+from reviewer.gui.main_window import MainWindow
+from reviewer.gui.roles_dialog import NO_ID, RolesDialog
+
+DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
+
+
+@pytest.fixture
+def data(tmp_path) -> Path:
+    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(tmp_path / "ini"))
+    path = tmp_path / "coffee_lots.csv"
+    shutil.copy(DEMO, path)
+    return path
+
+
+def test_dialog_shows_guesses(qtbot, data):
+    dlg = RolesDialog(ReviewSession.preview(data))
+    qtbot.addWidget(dlg)
+    assert dlg.label_combo.currentText() == "grade"
+    assert dlg.id_combo.currentText() in ("lot_id", NO_ID)
+    assert dlg.head_model.rowCount() == 20
+    label, _ident, overrides = dlg.choices()
+    assert label == "grade" and overrides == {}
+
+
+def test_choices_reach_the_session(qtbot, data, monkeypatch):
+    seen = {}
+    real_open = ReviewSession.open
+
+    def spy(path, **kwargs):
+        seen.update(kwargs)
+        return real_open(path, **kwargs)
+
+    monkeypatch.setattr(ReviewSession, "open", staticmethod(spy))
+    win = MainWindow(auto_fit=False)
+    qtbot.addWidget(win)
+
+    def choose():
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        dlg.label_combo.setCurrentText("processing")
+        dlg.id_combo.setCurrentText("lot_id")
+        dlg.kind_combos["screen_size"].setCurrentText("categorical")
+        dlg.kind_combos["cupper_note"].setCurrentText("ignore")
+        dlg.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+
+    QTimer.singleShot(200, choose)
+    assert win.open_path(data)
+    assert seen["label"] == "processing"
+    assert seen["id_column"] == "lot_id"
+    assert seen["overrides"]["screen_size"] == "categorical"
+    s = win.session
+    assert s.roles.label == "processing"
+    assert "screen_size" in s.roles.categorical
+    assert "cupper_note" in s.roles.ignored
+    # The list's label column now shows the chosen column's values.
+    assert set(win.model.column_spec("label").values) == set(s.frame["processing"].astype(str))
+
+    # Reopening the file: the dialog starts from the choices saved in its session file.
+    win.close()
+    dlg = RolesDialog(ReviewSession.preview(data))
+    qtbot.addWidget(dlg)
+    assert dlg.label_combo.currentText() == "processing"
+    assert dlg.kind_combos["screen_size"].currentText() == "categorical"
