@@ -26,6 +26,7 @@ from pathlib import Path
 from typing import Any, Protocol
 
 import numpy as np
+import pandas as pd
 
 from reviewer.core.atomic import atomic_write, atomic_write_bytes, check_target
 from reviewer.core.errors import ExportError
@@ -186,21 +187,14 @@ def export_cleaned(
 
 
 def _text_or_none(value: Any) -> str | None:
-    if value is None:
-        return None
-    if isinstance(value, float) and math.isnan(value):
+    if type(value) is str:  # the common case, first: this runs once per row
+        return value
+    if value is None or value is pd.NA or value is pd.NaT:
         return None
     if isinstance(value, np.generic):
         value = value.item()
-        if isinstance(value, float) and math.isnan(value):
-            return None
-    try:
-        import pandas as pd
-
-        if value is pd.NA or value is pd.NaT:
-            return None
-    except ImportError:  # pragma: no cover - pandas is a dependency
-        pass
+    if isinstance(value, float) and math.isnan(value):
+        return None
     return value if isinstance(value, str) else str(value)
 
 
@@ -237,25 +231,32 @@ def _field_pattern(delim: str) -> str:
 
 def _split_records(text: str, delim: str, where: Path) -> list[tuple[int, int, int]]:
     """(start, end, stop) per record: content is text[start:end], its line break end:stop."""
-    field = _field_pattern(delim)
-    record = re.compile(rf"{field}(?:{re.escape(delim)}{field})*")
-    brk = re.compile(r"\r\n|\n|\r")
-    out = []
-    pos, size = 0, len(text)
-    while pos < size:
-        end = record.match(text, pos).end()  # type: ignore[union-attr]
-        stop = end
-        if end < size:
-            m = brk.match(text, end)
-            if m is None:
-                line = text.count("\n", 0, end) + 1
-                raise ExportError(
-                    f"Cannot export {where}: a quoted field near line {line} is not closed"
-                )
-            stop = m.end()
-        out.append((pos, end, stop))
-        pos = stop
-    return out
+    d = re.escape(delim)
+    # Runs without quotes go in one step. As pandas and the csv module read it, a quote
+    # is special only at the start of a field (12" screen holds a literal quote).
+    run = r'[^"\r\n]*'
+    # A quote at the start of a field opens a quoted section; one never closed runs to the
+    # end of the text and is reported. Any other quote is a literal character.
+    quote = (
+        rf'(?:(?<=[{d}\r\n])|\A)"[^"]*(?:""[^"]*)*(?:"|(?P<open>\Z))'
+        rf'|(?<=[^{d}\r\n])"'
+    )
+    # Unrolled (a run, then quote-run pairs) so no text can be matched two ways, and every
+    # position matches: the scan is linear even on a broken file.
+    record = re.compile(rf"({run}(?:(?:{quote}){run})*)(?:\r\n|\n|\r|\Z)")
+    size = len(text)
+    spans = []
+    for m in record.finditer(text):
+        start = m.start()
+        if start == size:
+            break  # the empty match after a final line break
+        if m["open"] is not None:
+            line = text.count("\n", 0, start) + 1
+            raise ExportError(
+                f"Cannot export {where}: a quoted field in the record at line {line} is not closed"
+            )
+        spans.append((start, m.end(1), m.end()))
+    return spans
 
 
 def _split_fields(text: str, start: int, end: int, field_re: re.Pattern[str]) -> list[tuple]:
@@ -284,12 +285,6 @@ def _unquote(field: str) -> str:
 def _quote(value: str, delim: str, force: bool) -> str:
     needs = force or value == "" or delim in value or any(c in value for c in ('"', "\r", "\n"))
     return '"' + value.replace('"', '""') + '"' if needs else value
-
-
-def _is_blank(content: str, delim: str) -> bool:
-    # pandas skips empty and whitespace-only lines (skip_blank_lines), but a line holding
-    # the delimiter (a tab in a TSV) is a record of empty fields.
-    return delim not in content and content.strip(" \t") == ""
 
 
 def _cleaned_delimited(
@@ -322,7 +317,11 @@ def _cleaned_delimited(
         raise ExportError(f"Cannot export {where}: {codec} does not reproduce its bytes")
 
     records = _split_records(text, delim, where)
-    content = [i for i, (s, e, _) in enumerate(records) if not _is_blank(text[s:e], delim)]
+    # pandas skips empty and whitespace-only lines (skip_blank_lines), but a line holding
+    # the delimiter (a tab in a TSV) is a record of empty fields.
+    content = [
+        i for i, (s, e, _) in enumerate(records) if delim in text[s:e] or text[s:e].strip(" \t")
+    ]
     if not content:
         raise ExportError(f"Cannot export {where}: no header line found")
     data = content[1:]
@@ -342,22 +341,36 @@ def _cleaned_delimited(
         )
     col = list(source.columns).index(label_column)
 
-    row_of = {rec: row for row, rec in enumerate(data)}
+    if old is not None:
+        changed = {row for row in range(len(data)) if new[row] != old[row]}
+    else:
+        changed = {
+            row
+            for row, rec in enumerate(data)
+            if _label_changed(text, records[rec], col, new[row], delim, field_re)
+        }
+    if keep_excluded:
+        touched: list[int] = list(range(len(data)))
+    else:
+        touched = sorted(changed.union(np.flatnonzero(excluded).tolist()))
+
+    # Copy the text between touched records in one slice each; only touched records are
+    # rebuilt, so an export with few edits costs little more than a file copy.
     parts: list[str] = []
-    for i, (start, end, stop) in enumerate(records):
-        row = row_of.get(i)
-        if row is None:
-            if i == content[0] and keep_excluded:
-                parts += [text[start:end], delim, _quote(flag_column, delim, False), text[end:stop]]
-            else:
-                parts.append(text[start:stop])
-            continue
+    cursor = 0
+    if keep_excluded:
+        parts += [text[:head_end], delim, _quote(flag_column, delim, False)]
+        cursor = head_end
+    for row in touched:
+        start, end, stop = records[data[row]]
+        parts.append(text[cursor:start])
         if excluded[row] and not keep_excluded:
+            cursor = stop
             continue
-        spans = None
+        cursor = end  # the line break goes out with the next slice
         line = text[start:end]
-        label = new[row]
-        if _label_changed(text, start, end, col, label, old, row, field_re):
+        spans = None
+        if row in changed:
             spans = _split_fields(text, start, end, field_re)
             missing = col + 1 - len(spans)
             if missing > 0:  # a short (ragged) record: add empty fields up to the label
@@ -365,15 +378,20 @@ def _cleaned_delimited(
                 spans += [(end + k, end + k) for k in range(missing)]
             a, b = spans[col]
             was_quoted = a < end and text[a] == '"'
+            label = new[row]
             value = "" if label is None else _quote(label, delim, was_quoted)
             line = line[: a - start] + value + line[b - start :]
         if keep_excluded:
-            count = (
-                len(spans) if spans is not None else len(_split_fields(text, start, end, field_re))
-            )
+            if spans is not None:
+                count = len(spans)
+            elif '"' in line:
+                count = len(_split_fields(text, start, end, field_re))
+            else:  # no quotes: every delimiter separates fields
+                count = line.count(delim) + 1
             line += delim * max(0, width - count)
             line += delim + ("true" if excluded[row] else "false")
-        parts += [line, text[end:stop]]
+        parts.append(line)
+    parts.append(text[cursor:])
 
     out = "".join(parts)
     if records and records[-1][1] == records[-1][2]:
@@ -393,18 +411,20 @@ def _cleaned_delimited(
 
 def _label_changed(
     text: str,
-    start: int,
-    end: int,
+    record: tuple[int, int, int],
     col: int,
     label: str | None,
-    old: list[str | None] | None,
-    row: int,
+    delim: str,
     field_re: re.Pattern[str],
 ) -> bool:
-    if old is not None:
-        return label != old[row]
-    spans = _split_fields(text, start, end, field_re)
-    current = _unquote(text[slice(*spans[col])]) if col < len(spans) else ""
+    start, end, _ = record
+    line = text[start:end]
+    if '"' in line:
+        spans = _split_fields(text, start, end, field_re)
+        current = _unquote(text[slice(*spans[col])]) if col < len(spans) else ""
+    else:  # no quotes: every delimiter separates fields
+        fields = line.split(delim)
+        current = fields[col] if col < len(fields) else ""
     if label is None:
         return current not in _NA_TEXT
     return label != current
@@ -507,8 +527,6 @@ def _arrow_cast(value: str | None, typ, column: str, where: Path):
 def _cleaned_excel(
     source, label_column, new, old, excluded, keep_excluded, flag_column, out_path, overwrite
 ) -> Path:
-    import pandas as pd
-
     where = Path(source.path)
     try:
         with pd.ExcelFile(where, engine="openpyxl") as book:
@@ -571,8 +589,6 @@ def _like(value: str | None, dtype, cell: Any, column: str, where: Path) -> Any:
                 return False
             raise ValueError(value)
         if kind == "M":
-            import pandas as pd
-
             return pd.Timestamp(value)
     except (ValueError, TypeError) as exc:
         raise ExportError(

@@ -302,6 +302,11 @@ def test_unclosed_quote_is_refused(tmp_path):
     )
     with pytest.raises(ExportError, match="not closed"):
         export_cleaned(src, "label", ["b"], np.zeros(1, bool), tmp_path / "o.csv")
+    # A long line before the open quote must not make the record scan backtrack forever.
+    long = b"label,x\n" + b"a" * 300 + b',"open\n' + b"b,2\n"
+    src = delimited_source(tmp_path / "m2.csv", long, ",", "utf-8", ("label", "x"), 1)
+    with pytest.raises(ExportError, match="at line 2 is not closed"):
+        export_cleaned(src, "label", ["b"], np.zeros(1, bool), tmp_path / "o.csv")
 
 
 # -- Parquet and Excel -----------------------------------------------------------------------
@@ -708,8 +713,9 @@ _cell_text = (
     line_break=st.sampled_from(["\n", "\r\n"]),
     new=st.lists(st.one_of(st.none(), _cell_text), min_size=8, max_size=8),
     drop=st.lists(st.booleans(), min_size=8, max_size=8),
+    keep=st.booleans(),
 )
-def test_random_tables_match_the_csv_module(tmp_path, rows, delimiter, line_break, new, drop):
+def test_random_tables_match_the_csv_module(tmp_path, rows, delimiter, line_break, new, drop, keep):
     buffer = io.StringIO()
     csv.writer(buffer, delimiter=delimiter, lineterminator=line_break).writerows(
         [("label", "text"), *rows]
@@ -721,14 +727,28 @@ def test_random_tables_match_the_csv_module(tmp_path, rows, delimiter, line_brea
     excluded = np.array(drop[:n])
     out = tmp_path / "o.csv"
     export_cleaned(
-        src, "label", labels, excluded, out, overwrite=True, source_labels=[r[0] for r in rows]
+        src,
+        "label",
+        labels,
+        excluded,
+        out,
+        overwrite=True,
+        keep_excluded=keep,
+        source_labels=[r[0] for r in rows],
     )
     # Reference reader: Python's csv module.
     got = list(
         csv.reader(io.StringIO(out.read_bytes().decode("utf-8"), newline=""), delimiter=delimiter)
     )
-    want = [["label", "text"]] + [[labels[i], rows[i][1]] for i in range(n) if not excluded[i]]
+    if keep:
+        want = [["label", "text", "review_excluded"]] + [
+            [labels[i], rows[i][1], "true" if excluded[i] else "false"] for i in range(n)
+        ]
+    else:
+        want = [["label", "text"]] + [[labels[i], rows[i][1]] for i in range(n) if not excluded[i]]
     assert got == want
+    if keep:
+        return
     kept_same = [i for i in range(n) if not excluded[i] and labels[i] == rows[i][0]]
     text = out.read_bytes()
     for i in kept_same:  # untouched records appear verbatim
