@@ -618,8 +618,11 @@ class ReviewSession:
         report: str | os.PathLike[str] | None = None,
         keep_excluded: bool = False,
         overwrite: bool = False,
+        images: Mapping[str, bytes] | None = None,
     ) -> list[Path]:
-        """Cleaned table in the source's format, plus an optional audit log and HTML summary."""
+        """Cleaned table in the source's format, plus an optional audit log and HTML summary.
+
+        ``images`` (caption -> PNG bytes, drawn by the window) are embedded in the summary."""
         from reviewer.core import export as ex
 
         src = self.loaded.source
@@ -649,10 +652,11 @@ class ReviewSession:
             )
             written.append(writer(events, audit, overwrite=overwrite, protect=protect))
         if report:
+            summary = self.summary_for_report(written)
+            if images:
+                summary["images"] = dict(images)
             written.append(
-                ex.write_summary_html(
-                    self.summary_for_report(written), report, overwrite=overwrite, protect=protect
-                )
+                ex.write_summary_html(summary, report, overwrite=overwrite, protect=protect)
             )
         return written
 

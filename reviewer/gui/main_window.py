@@ -327,6 +327,7 @@ class MainWindow(QMainWindow):
             self.session.close()
         self.session = session
         session.subscribe(self._on_session_event)
+        self._install_plot_views(session)
         self.setWindowTitle(f"Margin Reviewer – {session.loaded.source.path.name}")
         self.settings_panel.set_settings(session.settings)
         self.settings_panel.show_used(session.latest.settings if session.latest else None)
@@ -898,8 +899,13 @@ class MainWindow(QMainWindow):
         if dlg.exec() != QDialog.DialogCode.Accepted:
             return
         out, audit, report, keep = dlg.values()
+        images = {}
+        if report:
+            from reviewer.gui.views import render_views_png
+
+            images = render_views_png(s, getattr(self, "views_panel", None))
         try:
-            written = s.export(out, audit=audit, report=report, keep_excluded=keep)
+            written = s.export(out, audit=audit, report=report, keep_excluded=keep, images=images)
         except ReviewerError as exc:
             self._error(str(exc))
             return
@@ -935,8 +941,20 @@ class MainWindow(QMainWindow):
         self.views_slot.setWidget(widget)
         self.views_slot.show()
 
+    def _install_plot_views(self, session: ReviewSession) -> None:
+        from reviewer.gui.views import ViewsPanel
+
+        old = getattr(self, "views_panel", None)
+        if old is not None:
+            old.shutdown()
+            old.deleteLater()
+        self.views_panel = ViewsPanel(session, self.bus, self)
+        self.install_views(self.views_panel)
+
     def closeEvent(self, event: QCloseEvent) -> None:
         self.runner.shutdown()
+        if getattr(self, "views_panel", None) is not None:
+            self.views_panel.shutdown()
         if self.session is not None:
             self.session.close()
             self.session = None
