@@ -152,7 +152,7 @@ def main(argv: list[str] | None = None) -> int:
     lines += [
         "",
         "The tool solves the hinge-loss objective with an unpenalised intercept to a certified "
-        "relative gap of 1e-3 (LIBSVM below 20,000 fitted rows, the primal Newton solver above); "
+        "relative gap of 1e-3 (LIBSVM up to 5,000 fitted rows, the primal Newton solver above); "
         "scikit-learn's LinearSVC default solves the squared hinge with a penalised intercept. "
         "Peak memory includes the Python interpreter and the libraries (about 150-250 MB).",
     ]
