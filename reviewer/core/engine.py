@@ -47,6 +47,9 @@ ZONE_TOL = 1e-3
 # Poly kernel (gamma x.z + coef0)^degree; coef0 = 1 keeps lower-order terms (common practice).
 POLY_COEF0 = 1.0
 DEFAULT_C = 1.0
+# Iteration cap handed to LIBSVM; -1 means none. A capped fit that stops early is reported
+# as not converged (BinaryFit.converged, the problem summary and a note in the fit summary).
+MAX_ITER = -1
 
 
 @dataclass
@@ -147,8 +150,12 @@ def fit_binary(
     sample_weight: np.ndarray | None = None,
     solver: str = "auto",
     tol: float = 1e-4,
+    max_iter: int | None = None,
 ) -> BinaryFit:
-    """Fit one soft-margin problem exactly (LIBSVM) or, for large n, approximately."""
+    """Fit one soft-margin problem exactly (LIBSVM) or, for large n, approximately.
+
+    ``max_iter`` caps LIBSVM's iterations (None: the module's MAX_ITER, -1: no cap).
+    """
     n = len(ypm)
     s = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
     large_kernel = kernel in ("linear", "rbf")
@@ -163,7 +170,7 @@ def fit_binary(
         coef0=POLY_COEF0 if kernel == "poly" else 0.0,
         tol=tol,
         cache_size=500,
-        max_iter=-1,
+        max_iter=MAX_ITER if max_iter is None else int(max_iter),
     )
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
@@ -392,6 +399,7 @@ def problem_summaries(model: SoftMarginClassifier) -> list[dict[str, Any]]:
             "intercept": p.intercept,
             "solver": p.solver,
             "converged": bool(p.converged),
+            "n_iter": p.n_iter,
             "n_support": int(np.sum(p.alpha > ALPHA_RTOL * p.upper)),
         }
         if p.w is not None:

@@ -7,8 +7,14 @@ import pandas as pd
 from sklearn.compose import ColumnTransformer
 from sklearn.impute import SimpleImputer
 from sklearn.pipeline import Pipeline
-from sklearn.preprocessing import FunctionTransformer, OneHotEncoder, StandardScaler
+from sklearn.preprocessing import (
+    FunctionTransformer,
+    MaxAbsScaler,
+    OneHotEncoder,
+    StandardScaler,
+)
 
+from reviewer.core.errors import InputError
 from reviewer.core.roles import ColumnRoles
 
 MISSING_CATEGORY = "(missing)"
@@ -37,6 +43,9 @@ def build_feature_transformer(roles: ColumnRoles) -> ColumnTransformer:
         numeric = Pipeline(
             [
                 ("to_float", FunctionTransformer(_as_float, feature_names_out="one-to-one")),
+                # Values near 1e308 overflow the median and variance; dividing by each
+                # column's largest magnitude first leaves the standardised result unchanged.
+                ("bound", MaxAbsScaler()),
                 ("impute", SimpleImputer(strategy="median", keep_empty_features=True)),
                 ("scale", StandardScaler()),
             ]
@@ -61,4 +70,9 @@ def feature_matrix(frame: pd.DataFrame, roles: ColumnRoles) -> tuple[np.ndarray,
     transformer = build_feature_transformer(roles)
     X = transformer.fit_transform(frame)
     X = np.ascontiguousarray(X, dtype=np.float64)
-    return X, [str(n) for n in transformer.get_feature_names_out()]
+    names = [str(n) for n in transformer.get_feature_names_out()]
+    bad = ~np.isfinite(X).all(axis=0)
+    if bad.any():
+        shown = ", ".join(repr(names[i]) for i in np.flatnonzero(bad)[:5])
+        raise InputError(f"feature column(s) {shown} could not be scaled to finite numbers")
+    return X, names

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 from sklearn.metrics import accuracy_score, balanced_accuracy_score
 
+from reviewer.core import engine
 from reviewer.core.autotune import choose_settings
 from reviewer.core.engine import (
     DEFAULT_C,
@@ -135,6 +136,20 @@ def fit_margins(
         Xf, labels[fit_rows].astype(str), report=report.slice(main_start, fit_end)
     )
     resolved["gamma_value"] = float(model.gamma_)
+    stopped = [
+        str(cls)
+        for cls, p in zip(
+            model.classes_[1:] if len(classes) == 2 else model.classes_,
+            model.problems_,
+            strict=True,
+        )
+        if not p.converged
+    ]
+    if stopped:
+        notes.append(
+            f"the solver stopped at its iteration limit ({engine.MAX_ITER:,} iterations) before "
+            f"converging for {', '.join(stopped)}; margins and slacks are approximate"
+        )
     report(fit_end, "scoring every row")
 
     # Class index of every labelled row; -1 where unlabelled or a class the fit never saw.

@@ -156,11 +156,12 @@ def detect_encoding(raw: bytes, p: Path | str = "<data>") -> str:
 def detect_delimiter(text: str, p: Path | str = "<data>") -> str:
     """Pick the delimiter among , ; tab | that splits the first lines most consistently."""
     suffix = Path(str(p)).suffix.lower()
-    if suffix in {".tsv", ".tab"}:
-        return "\t"
     lines = [line for line in text.splitlines()[:50] if line.strip()]
     if not lines:
         raise InputError(f"{p}: no text lines found")
+    # Trust a .tsv name only when the header has a tab; a comma file renamed .tsv is common.
+    if suffix in {".tsv", ".tab"} and "\t" in lines[0]:
+        return "\t"
     try:
         dialect = csv.Sniffer().sniff(
             "\n".join(lines[:20]), delimiters="".join(DELIMITER_CANDIDATES)
