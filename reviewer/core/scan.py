@@ -8,6 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from reviewer.core.duplicates import conflicting_duplicates
 from reviewer.core.engine import FitSettings
 from reviewer.core.features import feature_matrix
 from reviewer.core.fitting import FitResult, fit_margins
@@ -63,7 +64,15 @@ def scan_table(
     X, names = feature_matrix(loaded.frame, roles)
     labels = label_strings(loaded.frame[label])
     fit = fit_margins(X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
-    return ScanOutcome(scan_frame(fit, labels, row_ids(loaded.frame, id_column)), fit, roles, names)
+    ids = row_ids(loaded.frame, id_column)
+    groups = conflicting_duplicates(loaded.frame, roles, labels)
+    if groups:
+        shown = "; ".join(", ".join(str(ids[r]) for r in g[:4]) for g in groups[:3])
+        fit.summary["notes"].append(
+            f"{len(groups)} group(s) of rows with identical features but different labels "
+            f"(a classic sign of label noise), e.g. {shown}"
+        )
+    return ScanOutcome(scan_frame(fit, labels, ids), fit, roles, names)
 
 
 def scan_frame(fit: FitResult, labels: np.ndarray, ids: np.ndarray) -> pd.DataFrame:
