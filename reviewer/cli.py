@@ -72,6 +72,23 @@ def build_parser() -> argparse.ArgumentParser:
     p_scan.add_argument("--seed", type=int, default=0)
     p_scan.add_argument("--out", help="output CSV (default: standard output)")
 
+    p_probe = sub.add_parser(
+        "probe", help="plant known label flips in a copy and report how many the ranking finds"
+    )
+    p_probe.add_argument("data")
+    p_probe.add_argument("--label", required=True, help="the label column")
+    p_probe.add_argument("--id", dest="id_column", help="the id column")
+    p_probe.add_argument(
+        "--rate", type=float, default=0.05, help="share of labelled rows to flip (default 0.05)"
+    )
+    p_probe.add_argument("--seed", type=int, default=0, help="seed for the flips and the fit")
+    p_probe.add_argument("--kernel", default="auto", choices=["auto", "linear", "rbf", "poly"])
+    p_probe.add_argument(
+        "--C", dest="C", type=_positive_float, default=None, help="penalty C (default: auto)"
+    )
+    p_probe.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
+    p_probe.add_argument("--out", help="also write the result as JSON to this file")
+
     p_export = sub.add_parser("export", help="write the cleaned table, audit log and summary")
     p_export.add_argument("session")
     p_export.add_argument("--out", required=True, help="cleaned table, in the source's format")
@@ -94,6 +111,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             return _scan(args)
         if args.command == "export":
             return _export(args)
+        if args.command == "probe":
+            return _probe(args)
         if args.command in ("demo", "open", None):
             return _window(args)
     except ReviewerError as exc:
@@ -150,6 +169,33 @@ def _scan(args: argparse.Namespace) -> int:
         f"time: {time.perf_counter() - started:.2f} s",
     ]
     sys.stderr.write("\n".join(lines) + "\n")
+    return 0
+
+
+def _probe(args: argparse.Namespace) -> int:
+    import json
+
+    from reviewer.core.engine import FitSettings
+    from reviewer.core.loading import load_table
+    from reviewer.core.probe import format_probe, probe_table
+
+    started = time.perf_counter()
+    settings = FitSettings(
+        kernel=args.kernel, C=args.C, folds=args.folds, seed=args.seed
+    ).validate()
+    loaded = load_table(args.data)
+    result = probe_table(
+        loaded,
+        args.label,
+        id_column=args.id_column,
+        settings=settings,
+        rate=args.rate,
+        seed=args.seed,
+    )
+    sys.stdout.write(format_probe(result) + "\n")
+    if args.out:
+        Path(args.out).write_text(json.dumps(result.to_dict(), indent=1), encoding="utf-8")
+    sys.stderr.write(f"time: {time.perf_counter() - started:.2f} s\n")
     return 0
 
 
