@@ -237,7 +237,7 @@ def _read_excel(p: Path, raw: bytes, sheet: str | None) -> tuple[pd.DataFrame, s
         raise InputError(f"{p}: no sheet named {sheet!r}; sheets are {', '.join(names)}")
     chosen = sheet or names[0]
     try:
-        frame = book.parse(chosen, na_values=MISSING_MARKERS)
+        frame = pd.read_excel(book, sheet_name=chosen, na_values=MISSING_MARKERS)
     except Exception as exc:
         raise InputError(f"{p}: sheet {chosen!r} cannot be read ({_first_line(exc)})") from exc
     return frame.reset_index(drop=True), chosen
