@@ -260,6 +260,8 @@ def run(datasets: dict, rates, seeds, noises, log) -> tuple[list[dict], dict]:
                         if isinstance(val, float):
                             timing[key] = timing.get(key, 0.0) + val
                     for method in METHODS:
+                        # Every labelled row must be ranked; a NaN score would skew the metrics.
+                        assert np.isfinite(scores[method]).all(), f"{method} left rows unscored"
                         m = metrics(scores[method], flipped, rng)
                         records.append(
                             {

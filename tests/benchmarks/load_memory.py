@@ -66,6 +66,7 @@ def child(path: Path) -> dict:
     t0 = time.perf_counter()
     loaded = load_table(path, progress=lambda f, _m: calls.append(float(f)))
     t_load = time.perf_counter() - t0
+    assert len(loaded.frame) > 0 and calls and calls[-1] == 1.0, "load reported no completion"
     peak_after_load = _peak_rss_bytes()
     roles = infer_roles(loaded.frame, "label")
     X, names = feature_matrix(loaded.frame, roles)
