@@ -159,20 +159,9 @@ def export_cleaned(
             source, label_column, new, old, excluded, keep_excluded, flag_column
         )
         return atomic_write_bytes(out_path, data, overwrite=overwrite, protect=(src_path,))
-    if kind == "parquet":
-        return _cleaned_parquet(
-            source,
-            label_column,
-            new,
-            old,
-            excluded,
-            keep_excluded,
-            flag_column,
-            out_path,
-            overwrite,
-        )
-    if kind == "excel":
-        return _cleaned_excel(
+    writer = {"parquet": _cleaned_parquet, "excel": _cleaned_excel}.get(kind)
+    if writer is not None:
+        return writer(
             source,
             label_column,
             new,
