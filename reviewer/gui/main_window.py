@@ -175,6 +175,8 @@ class MainWindow(QMainWindow):
         self.table = QTableView()
         self.table.setObjectName("triage_table")
         self.table.setModel(self.model)
+        # Fit columns to a sample of rows, not to every row of a million-row table.
+        self.table.horizontalHeader().setResizeContentsPrecision(200)
         self.table.setSortingEnabled(True)
         self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.ExtendedSelection)
@@ -327,7 +329,6 @@ class MainWindow(QMainWindow):
             self.session.close()
         self.session = session
         session.subscribe(self._on_session_event)
-        self._install_plot_views(session)
         self.setWindowTitle(f"Margin Reviewer – {session.loaded.source.path.name}")
         self.settings_panel.set_settings(session.settings)
         self.settings_panel.show_used(session.latest.settings if session.latest else None)
@@ -346,6 +347,9 @@ class MainWindow(QMainWindow):
         self._update_status()
         self.bus.fit_changed.emit()
         self.bus.labels_changed.emit()
+        # Built after the announcements above: a new panel draws itself once, and at a
+        # million rows each extra projection redraw costs about a second.
+        self._install_plot_views(session)
         if session.latest is None and self.auto_fit:
             QTimer.singleShot(0, self.refit)
         else:
