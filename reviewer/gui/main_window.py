@@ -11,11 +11,10 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from PySide6.QtCore import QSettings, Qt, QTimer
+from PySide6.QtCore import QEventLoop, QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QCloseEvent, QKeySequence
 from PySide6.QtWidgets import (
     QAbstractItemView,
-    QApplication,
     QCheckBox,
     QComboBox,
     QDialog,
@@ -34,6 +33,7 @@ from PySide6.QtWidgets import (
     QSplitter,
     QTableView,
     QTextBrowser,
+    QToolBar,
     QVBoxLayout,
     QWidget,
 )
@@ -853,21 +853,53 @@ class MainWindow(QMainWindow):
         return True
 
     def _open_with_progress(self, path: Path, **kwargs: Any) -> ReviewSession:
-        # The session's SQLite connection belongs to the thread that opens it, so loading
-        # runs here with the progress bar kept alive by processing events between steps.
+        """Load the file and open its session on a worker thread while the window keeps
+        painting; returns when done. The session file's connection is shared across threads
+        under its own lock, so the session may be built off the GUI thread."""
+        self.progress.setValue(0)
         self.progress.show()
+        self.progress_text.setText("loading…")
         self.progress_text.show()
+        self.menuBar().setEnabled(False)  # no second open or export while this one runs
+        for bar in self.findChildren(QToolBar):
+            bar.setEnabled(False)
+        runner = TaskRunner(self)
+        loop = QEventLoop()
+        outcome: dict[str, Any] = {}
 
-        def report(fraction: float, message: str = "") -> None:
+        def job(progress, cancel) -> tuple[str, Any]:
+            try:
+                return "ok", ReviewSession.open(path, progress=progress, cancel=cancel, **kwargs)
+            except ReviewerError as exc:  # handed back whole: the type decides what to ask
+                return "error", exc
+
+        def on_progress(fraction: float, message: str) -> None:
             self.progress.setValue(int(fraction * 1000))
             self.progress_text.setText(message or "loading…")
-            QApplication.processEvents()
 
+        def finish(kind: str, value: Any) -> None:
+            outcome[kind] = value
+            loop.quit()
+
+        runner.progress.connect(on_progress)
+        runner.finished.connect(lambda result: finish(*result))
+        runner.failed.connect(lambda message: finish("failed", message))
+        runner.cancelled.connect(lambda: finish("failed", "opening was cancelled"))
         try:
-            return ReviewSession.open(path, progress=report, **kwargs)
+            runner.start(job)
+            if runner.is_running:
+                loop.exec()
         finally:
             self.progress.hide()
             self.progress_text.hide()
+            self.menuBar().setEnabled(True)
+            for bar in self.findChildren(QToolBar):
+                bar.setEnabled(True)
+        if "ok" in outcome:
+            return outcome["ok"]
+        if "error" in outcome:
+            raise outcome["error"]
+        raise ReviewerError(f"{path}: {outcome.get('failed', 'could not be opened')}")
 
     def ask_source_changed(self, message: str) -> str | None:
         """ "read_only", "reattach" or None (cancel)."""
