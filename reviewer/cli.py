@@ -133,9 +133,9 @@ def _one_line(text: str) -> str:
 
 
 def _scan(args: argparse.Namespace) -> int:
-    from reviewer.core.engine import FitSettings
-    from reviewer.core.loading import load_table
-    from reviewer.core.scan import scan_table
+    from reviewer.core.data.loading import load_table
+    from reviewer.core.model.engine import FitSettings
+    from reviewer.core.model.scan import scan_table
 
     started = time.perf_counter()
     settings = FitSettings(
@@ -175,9 +175,9 @@ def _scan(args: argparse.Namespace) -> int:
 def _probe(args: argparse.Namespace) -> int:
     import json
 
-    from reviewer.core.engine import FitSettings
-    from reviewer.core.loading import load_table
-    from reviewer.core.probe import format_probe, probe_table
+    from reviewer.core.data.loading import load_table
+    from reviewer.core.model.engine import FitSettings
+    from reviewer.core.model.probe import format_probe, probe_table
 
     started = time.perf_counter()
     settings = FitSettings(
@@ -200,7 +200,7 @@ def _probe(args: argparse.Namespace) -> int:
 
 
 def _export(args: argparse.Namespace) -> int:
-    from reviewer.core.session import export_session
+    from reviewer.core.review.session import export_session
 
     written = export_session(
         Path(args.session),

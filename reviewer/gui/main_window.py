@@ -38,9 +38,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core import editlog
 from reviewer.core.errors import ReviewerError, SourceChangedError
-from reviewer.core.session import ReviewSession
+from reviewer.core.review import editlog
+from reviewer.core.review.session import ReviewSession
 from reviewer.gui import palette, resources
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.help_text import CAUTION, help_html

@@ -1,5 +1,7 @@
-"""The plot widgets: projection, slack histogram and C curve. They draw what
-``reviewer.core.plotdata`` computes and talk to the rest of the window only through the bus."""
+"""The plot widgets: projection, slack histogram and C curve.
+
+They draw what ``reviewer.core.review.plotdata`` computes and talk to the rest of the window
+only through the bus."""
 
 from __future__ import annotations
 
@@ -19,10 +21,10 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core import plotdata
-from reviewer.core.autotune import CURVE_CS, c_curve_for_labels
-from reviewer.core.editlog import REVIEW_NAMES
-from reviewer.core.engine import FitSettings
+from reviewer.core.model.engine import FitSettings
+from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
+from reviewer.core.review import plotdata
+from reviewer.core.review.editlog import REVIEW_NAMES
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.workers import TaskRunner

@@ -19,7 +19,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core.session import ReviewSession
+from reviewer.core.review.session import ReviewSession
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.table_model import SOURCE_ROW_ROLE, ArrayTableModel, ColumnSpec
@@ -130,7 +130,7 @@ class RowPanel(QWidget):
             self.history.setPlainText("")
             return
         self.title.setText(f"Row {row}   ·   {s.roles.id or 'id'} {s.ids[row]}")
-        from reviewer.core.editlog import REVIEW_NAMES
+        from reviewer.core.review.editlog import REVIEW_NAMES
 
         self.values["label"].setText(_text(s.labels[row]))
         self.values["review"].setText(REVIEW_NAMES[int(s.review[row])])

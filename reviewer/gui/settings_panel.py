@@ -15,8 +15,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core.engine import KERNELS, SCORES, FitSettings
 from reviewer.core.errors import SettingsError
+from reviewer.core.model.engine import KERNELS, SCORES, FitSettings
 
 _SCORE_TEXT = {"heldout": "held-out slack", "training": "training slack"}
 

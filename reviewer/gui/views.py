@@ -34,9 +34,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core import plotdata
-from reviewer.core.compare import CAUTION, Comparison, compare_fits, score_on_reference
 from reviewer.core.errors import ReviewerError
+from reviewer.core.review import plotdata
+from reviewer.core.review.compare import CAUTION, Comparison, compare_fits, score_on_reference
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.plots import CCurvePlot, ProjectionPlot, SlackHistogramPlot
@@ -199,7 +199,7 @@ class CompareView(QWidget):
         )
         if not path:
             return
-        from reviewer.core.loading import load_table
+        from reviewer.core.data.loading import load_table
 
         try:
             frame = load_table(path).frame

@@ -57,9 +57,9 @@ def _peak_rss_bytes() -> int:
 
 def child(path: Path) -> dict:
     """Runs in a fresh process so its peak memory belongs to this work alone."""
-    from reviewer.core.features import feature_matrix
-    from reviewer.core.loading import load_table
-    from reviewer.core.roles import infer_roles
+    from reviewer.core.data.features import feature_matrix
+    from reviewer.core.data.loading import load_table
+    from reviewer.core.data.roles import infer_roles
 
     base = _peak_rss_bytes()
     calls: list[float] = []

@@ -25,8 +25,8 @@ ROOT = Path(__file__).resolve().parents[2]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from reviewer.core.editlog import Event, LabelState  # noqa: E402
-from reviewer.core.sessionfile import SessionFile  # noqa: E402
+from reviewer.core.review.editlog import Event, LabelState  # noqa: E402
+from reviewer.core.review.sessionfile import SessionFile  # noqa: E402
 
 CLASSES = np.array(["setosa-like", "versicolor-like", "virginica-like", "other"], dtype=object)
 

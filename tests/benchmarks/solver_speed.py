@@ -63,7 +63,7 @@ def _case(kind: str, n: int, opts: dict, queue) -> None:
     from scipy.stats import spearmanr
     from sklearn.svm import SVC, LinearSVC
 
-    from reviewer.core.solvers import fit_linear_hinge, fit_rbf_approx, hinge_primal
+    from reviewer.core.model.solvers import fit_linear_hinge, fit_rbf_approx, hinge_primal
 
     out: dict = {"kind": kind, "n": n}
     if kind.startswith("rbf"):

@@ -46,8 +46,8 @@ def write_table(folder: Path, n: int, seed: int = 0) -> Path:
 def measure(n: int) -> dict:
     from PySide6.QtWidgets import QApplication
 
-    from reviewer.core.engine import FitSettings
-    from reviewer.core.session import ReviewSession
+    from reviewer.core.model.engine import FitSettings
+    from reviewer.core.review.session import ReviewSession
     from reviewer.gui.app import make_app
     from reviewer.gui.main_window import MainWindow
 

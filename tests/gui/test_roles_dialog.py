@@ -9,7 +9,7 @@ import pytest
 from PySide6.QtCore import QSettings, QTimer
 from PySide6.QtWidgets import QApplication, QDialogButtonBox
 
-from reviewer.core.session import ReviewSession
+from reviewer.core.review.session import ReviewSession
 from reviewer.gui.main_window import MainWindow
 from reviewer.gui.roles_dialog import NO_ID, RolesDialog
 

@@ -8,11 +8,11 @@ import pytest
 from PySide6.QtCore import QPointF, Qt
 from PySide6.QtTest import QTest
 
-from reviewer.core import plotdata
-from reviewer.core.compare import compare_fits
-from reviewer.core.engine import FitSettings
-from reviewer.core.export import write_summary_html
-from reviewer.core.session import ReviewSession
+from reviewer.core.model.engine import FitSettings
+from reviewer.core.output.export import write_summary_html
+from reviewer.core.review import plotdata
+from reviewer.core.review.compare import compare_fits
+from reviewer.core.review.session import ReviewSession
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.views import ViewsPanel, _fmt, render_views_png
 

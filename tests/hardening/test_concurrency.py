@@ -12,9 +12,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reviewer.core.engine import FitSettings
 from reviewer.core.errors import Cancelled, SessionError, SessionLockedError
-from reviewer.core.session import ReviewSession
+from reviewer.core.model.engine import FitSettings
+from reviewer.core.review.session import ReviewSession
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -22,7 +22,7 @@ ROOT = Path(__file__).resolve().parents[2]
 HOLDER = textwrap.dedent(
     """
     import sys
-    from reviewer.core.session import ReviewSession
+    from reviewer.core.review.session import ReviewSession
     session = ReviewSession.open(sys.argv[1], label="label", session_path=sys.argv[2])
     session.keep([0], reason="held by the first process")
     print("ready", flush=True)

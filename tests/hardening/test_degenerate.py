@@ -6,14 +6,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reviewer.core import engine
-from reviewer.core.duplicates import conflicting_duplicates
-from reviewer.core.engine import FitSettings
+from reviewer.core.data.duplicates import conflicting_duplicates
+from reviewer.core.data.features import feature_matrix
+from reviewer.core.data.loading import label_strings
+from reviewer.core.data.roles import ColumnRoles, infer_roles
 from reviewer.core.errors import InputError, ReviewerError
-from reviewer.core.features import feature_matrix
-from reviewer.core.fitting import fit_margins
-from reviewer.core.loading import label_strings
-from reviewer.core.roles import ColumnRoles, infer_roles
+from reviewer.core.model import engine
+from reviewer.core.model.engine import FitSettings
+from reviewer.core.model.fitting import fit_margins
 
 LINEAR = FitSettings(kernel="linear", C=1.0, folds=3)
 

@@ -20,10 +20,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from reviewer.core.data.features import feature_matrix
+from reviewer.core.data.loading import LoadedTable, load_table
+from reviewer.core.data.roles import infer_roles
 from reviewer.core.errors import InputError, ReviewerError
-from reviewer.core.features import feature_matrix
-from reviewer.core.loading import LoadedTable, load_table
-from reviewer.core.roles import infer_roles
 
 ROOT = Path(__file__).resolve().parents[2]
 FUZZ = settings(

@@ -14,7 +14,7 @@ from scipy.stats import spearmanr
 from sklearn.datasets import load_breast_cancer
 from sklearn.preprocessing import StandardScaler
 
-from reviewer.core.engine import fit_binary
+from reviewer.core.model.engine import fit_binary
 
 
 @pytest.fixture(scope="module")

@@ -26,14 +26,14 @@ from sklearn.model_selection import StratifiedKFold
 from sklearn.preprocessing import StandardScaler
 from sklearn.svm import SVC
 
-from reviewer.core.engine import (
+from reviewer.core.model.engine import (
     FitSettings,
     SoftMarginClassifier,
     fit_binary,
     resolve_gamma,
     support_kinds,
 )
-from reviewer.core.fitting import fit_margins
+from reviewer.core.model.fitting import fit_margins
 
 DECISION_ATOL = 1e-3
 KKT_TOL = 1e-3

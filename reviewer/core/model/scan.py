@@ -1,0 +1,85 @@
+"""The scan table: one row per input row, in input order, with the ranking columns."""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from reviewer.core.data.duplicates import conflicting_duplicates
+from reviewer.core.data.features import feature_matrix
+from reviewer.core.data.loading import LoadedTable, label_strings
+from reviewer.core.data.roles import ColumnRoles, infer_roles
+from reviewer.core.model.engine import FitSettings
+from reviewer.core.model.fitting import FitResult, fit_margins
+from reviewer.core.progress import ProgressFn, Reporter
+
+SCAN_COLUMNS = (
+    "row_id",
+    "label",
+    "suggested_label",
+    "margin",
+    "slack",
+    "heldout_margin",
+    "heldout_slack",
+    "alpha",
+    "zone",
+    "support",
+    "score",
+    "rank",
+)
+
+
+@dataclass
+class ScanOutcome:
+    table: pd.DataFrame
+    fit: FitResult
+    roles: ColumnRoles
+    feature_names: list[str]
+
+
+def row_ids(frame: pd.DataFrame, id_column: str | None) -> np.ndarray:
+    """The id column as text, else the 0-based data-row position."""
+    if id_column is None:
+        return np.arange(len(frame)).astype(str).astype(object)
+    return label_strings(frame[id_column])
+
+
+def scan_table(
+    loaded: LoadedTable,
+    label: str,
+    *,
+    id_column: str | None = None,
+    settings: FitSettings | None = None,
+    overrides: Mapping[str, str] | None = None,
+    progress: ProgressFn | None = None,
+    cancel=None,
+) -> ScanOutcome:
+    report = Reporter(progress, cancel)
+    settings = (settings or FitSettings()).validate()
+    roles = infer_roles(loaded.frame, label, id_column, overrides)
+    report(0.0, "building features")
+    X, names = feature_matrix(loaded.frame, roles)
+    labels = label_strings(loaded.frame[label])
+    fit = fit_margins(X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
+    ids = row_ids(loaded.frame, id_column)
+    groups = conflicting_duplicates(loaded.frame, roles, labels)
+    if groups:
+        shown = "; ".join(", ".join(str(ids[r]) for r in g[:4]) for g in groups[:3])
+        fit.summary["notes"].append(
+            f"{len(groups)} group(s) of rows with identical features but different labels "
+            f"(a classic sign of label noise), e.g. {shown}"
+        )
+    return ScanOutcome(scan_frame(fit, labels, ids), fit, roles, names)
+
+
+def scan_frame(fit: FitResult, labels: np.ndarray, ids: np.ndarray) -> pd.DataFrame:
+    rows = fit.rows
+    out = pd.DataFrame({"row_id": ids, "label": labels})
+    for col in SCAN_COLUMNS[2:]:
+        out[col] = rows[col].to_numpy()
+    rank = out["rank"].astype("Int64")
+    out["rank"] = rank.where(rank > 0)
+    return out[list(SCAN_COLUMNS)]
