@@ -113,9 +113,7 @@ def test_balanced_class_weights_match_libsvm() -> None:
     model = SoftMarginClassifier(kernel="linear", C=1.0, class_weight="balanced").fit(X, labels)
     # reference: scikit-learn SVC with class_weight="balanced" (n / (K * n_class) per class)
     ref = _reference_svc(X, ypm, 1.0, "linear", class_weight="balanced")
-    np.testing.assert_allclose(
-        model.decision_function(X)[:, 1], ref.decision_function(X), atol=1e-3
-    )
+    np.testing.assert_allclose(model.decision_function(X), ref.decision_function(X), atol=1e-3)
     upper = model.problems_[0].upper
     counts = {c: np.sum(ypm == c) for c in (-1.0, 1.0)}
     expected = np.array([len(ypm) / (2 * counts[v]) for v in ypm])
@@ -273,7 +271,7 @@ def test_binary_margin_is_label_times_decision() -> None:
     X, ypm = _binary_data(n=160, seed=2)
     labels = np.where(ypm > 0, "yes", "no").astype(object)  # classes sort as (no, yes)
     result = fit_margins(X, labels, FitSettings(kernel="rbf", C=3.0, folds=0))
-    f = result.model.decision_function(X)[:, 1]
+    f = result.model.decision_function(X)
     np.testing.assert_allclose(result.rows["margin"].to_numpy(), ypm * f, atol=1e-9)
     # and f itself is LIBSVM's decision value (scikit-learn SVC), within the solver tolerance
     ref = _reference_svc(X, ypm, 3.0, "rbf")

@@ -23,7 +23,11 @@ from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
+from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.svm import SVC
+from sklearn.utils.class_weight import compute_sample_weight
+from sklearn.utils.multiclass import check_classification_targets
+from sklearn.utils.validation import _check_sample_weight, check_is_fitted, validate_data
 
 from reviewer.core.errors import InputError, SettingsError
 from reviewer.core.progress import Reporter
@@ -33,12 +37,21 @@ SUPPORTS = ("non_support", "margin_support", "bound_support")
 KERNELS = ("linear", "rbf", "poly")
 SCORES = ("heldout", "training")
 SOLVERS = ("auto", "exact", "approximate")
-# Above this many fitted rows, solver="auto" switches to the approximate large-n solvers.
-EXACT_LIMIT = 20_000
-# LIBSVM's linear solve slows sharply with n on overlapping classes (34 s for a 10,000-row
-# scan here against 0.3 s for liblinear); the primal Newton solver reaches the same objective
-# to a certified 1e-3 gap, so linear problems switch to it much earlier.
-LINEAR_EXACT_LIMIT = 5_000
+# solver="auto" picks the solver by predicted cost, not by a row count. Measured on real tables
+# (tests/benchmarks/results/solver_speed.md, real_tables.md): LIBSVM's linear solve needs a
+# number of iterations that grows with n * C on overlapping classes (4,000 x 85 rows of
+# Caravan: 7 s at C=1, no convergence in 29 s at C=10) while the primal Newton solver takes
+# 0.1 s to a certified 1e-3 gap, so linear problems go to the primal solver once
+# n * max(C, 1) passes LINEAR_EXACT_WORK. An exact RBF solve is quick while its kernel matrix
+# fits LIBSVM's cache (4,000 x 85: 0.5 s) and slow once it does not (20,000 x 20: 41 s), and
+# large C adds iterations; it is used up to RBF_EXACT_ROWS rows (n^2 doubles in the cache) and
+# n^2 * d * sqrt(max(C, 1)) <= RBF_EXACT_WORK, the Nystroem map beyond.
+LINEAR_EXACT_WORK = 2_500
+# Problems this small stay exact whatever C: exact alpha (KKT) matter more than a second.
+EXACT_ROWS_ALWAYS = 500
+RBF_EXACT_WORK = 1e10
+KERNEL_CACHE_MB = 500
+RBF_EXACT_ROWS = int(np.sqrt(KERNEL_CACHE_MB * 1e6 / 8))
 # Relative tolerance for calling alpha "at the bound" or "zero" (LIBSVM stores exact bounds).
 ALPHA_RTOL = 1e-6
 # Slack at or below this counts as zero for the zone: LIBSVM stops at a dual-gradient tolerance
@@ -139,6 +152,29 @@ def resolve_gamma(gamma: float | str, X: np.ndarray) -> float:
     return float(gamma)
 
 
+def predicted_exact_work(n: int, d: int, kernel: str, C: float) -> float:
+    """Relative cost of an exact LIBSVM solve, in the units of its kernel's budget."""
+    if kernel == "linear":
+        return n * max(float(C), 1.0)
+    return float(n) * n * max(d, 1) * np.sqrt(max(float(C), 1.0))
+
+
+def choose_solver(n: int, d: int, kernel: str, C: float) -> str:
+    """'exact' or 'approximate' for one binary problem of n rows and d features.
+
+    Poly has no approximate path and stays exact.
+    """
+    if n <= EXACT_ROWS_ALWAYS:
+        return "exact"
+    if kernel == "linear":
+        cheap = predicted_exact_work(n, d, kernel, C) <= LINEAR_EXACT_WORK
+        return "exact" if cheap else "approximate"
+    if kernel == "rbf":
+        cheap = n <= RBF_EXACT_ROWS and predicted_exact_work(n, d, kernel, C) <= RBF_EXACT_WORK
+        return "exact" if cheap else "approximate"
+    return "exact"
+
+
 def fit_binary(
     X: np.ndarray,
     ypm: np.ndarray,
@@ -158,9 +194,9 @@ def fit_binary(
     """
     n = len(ypm)
     s = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
-    large_kernel = kernel in ("linear", "rbf")
-    limit = LINEAR_EXACT_LIMIT if kernel == "linear" else EXACT_LIMIT
-    if large_kernel and (solver == "approximate" or (solver == "auto" and n > limit)):
+    if solver == "auto":
+        solver = choose_solver(n, X.shape[1], kernel, C)
+    if kernel in ("linear", "rbf") and solver == "approximate":
         return fit_binary_large(X, ypm, C, kernel=kernel, gamma=gamma, sample_weight=s)
     svc = SVC(
         kernel=kernel,
@@ -169,7 +205,7 @@ def fit_binary(
         degree=degree,
         coef0=POLY_COEF0 if kernel == "poly" else 0.0,
         tol=tol,
-        cache_size=500,
+        cache_size=KERNEL_CACHE_MB,
         max_iter=MAX_ITER if max_iter is None else int(max_iter),
     )
     with warnings.catch_warnings(record=True) as caught:
@@ -251,11 +287,15 @@ def fit_binary_large(
     )
 
 
-class SoftMarginClassifier:
+class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
     """Soft-margin SVM, one problem per class against the rest (a single problem for two classes).
 
-    Follows scikit-learn's estimator manners: settings stored as given, learned values end
-    with ``_``, ``fit`` returns ``self``.
+    A scikit-learn estimator: settings are stored as given, learned values end with ``_``,
+    ``fit`` returns ``self``, and it can be cloned, cross-validated and grid-searched.
+    ``decision_function`` follows scikit-learn's shape rule (one column for two classes);
+    ``decision_matrix`` always has one column per class, which is what margins need.
+    ``class_weight="balanced"`` gives each row n / (K * n_class) times C
+    (scikit-learn's compute_sample_weight), multiplied by any ``sample_weight``.
     """
 
     def __init__(
@@ -275,19 +315,34 @@ class SoftMarginClassifier:
         self.solver = solver
 
     def fit(
-        self, X: np.ndarray, y: np.ndarray, report: Reporter | None = None
+        self,
+        X: np.ndarray,
+        y: np.ndarray,
+        sample_weight: np.ndarray | None = None,
+        report: Reporter | None = None,
     ) -> SoftMarginClassifier:
         report = report or Reporter()
-        y = np.asarray(y, dtype=object)
-        self.classes_, y_idx = np.unique(y.astype(str), return_inverse=True)
+        if self.kernel not in KERNELS:
+            raise SettingsError(f"kernel {self.kernel!r} is not one of {', '.join(KERNELS)}")
+        if not (np.isfinite(self.C) and self.C > 0):
+            raise SettingsError(f"C must be a positive number, got {self.C!r}")
+        X, y = validate_data(self, X, y, dtype=np.float64)
+        check_classification_targets(y)
+        self.classes_, y_idx = np.unique(y, return_inverse=True)
         k = len(self.classes_)
         if k < 2:
             raise InputError(
-                f"need at least two classes to fit; found {k} "
+                f"need at least two classes to fit; found {k} class "
                 f"({', '.join(map(str, self.classes_))})"
             )
         self.gamma_ = resolve_gamma(self.gamma, X)
-        self.sample_weight_ = class_weights(y_idx, k) if self.class_weight == "balanced" else None
+        weight = None
+        if self.class_weight is not None:
+            weight = compute_sample_weight(self.class_weight, y_idx)
+        if sample_weight is not None:
+            sw = _check_sample_weight(sample_weight, X)
+            weight = sw if weight is None else weight * sw
+        self.sample_weight_ = weight
         targets = [1] if k == 2 else list(range(k))
         self.problems_: list[BinaryFit] = []
         for j, cls in enumerate(targets):
@@ -301,7 +356,7 @@ class SoftMarginClassifier:
                     kernel=self.kernel,
                     gamma=self.gamma_,
                     degree=self.degree,
-                    sample_weight=self.sample_weight_,
+                    sample_weight=weight,
                     solver=self.solver,
                 )
             )
@@ -309,12 +364,22 @@ class SoftMarginClassifier:
         self.y_idx_ = y_idx
         return self
 
-    def decision_function(self, X: np.ndarray) -> np.ndarray:
+    def decision_matrix(self, X: np.ndarray) -> np.ndarray:
         """(n, K) decision values; for two classes the columns are (-f, f)."""
+        check_is_fitted(self)
+        X = validate_data(self, X, dtype=np.float64, reset=False)
         if len(self.classes_) == 2:
             f = self.problems_[0].decision_function(X)
             return np.column_stack([-f, f])
         return np.column_stack([p.decision_function(X) for p in self.problems_])
+
+    def decision_function(self, X: np.ndarray) -> np.ndarray:
+        """f(x) for two classes (positive for ``classes_[1]``), else one column per class."""
+        F = self.decision_matrix(X)
+        return F[:, 1] if len(self.classes_) == 2 else F
+
+    def predict(self, X: np.ndarray) -> np.ndarray:
+        return self.classes_[np.argmax(self.decision_matrix(X), axis=1)]
 
     def training_decision(self) -> np.ndarray:
         if len(self.classes_) == 2:
@@ -334,13 +399,6 @@ class SoftMarginClassifier:
             alpha[rows] = p.alpha[rows]
             upper[rows] = p.upper[rows]
         return alpha, upper
-
-
-def class_weights(y_idx: np.ndarray, k: int) -> np.ndarray:
-    """Per-row weights n / (K * n_class), scikit-learn's 'balanced' rule."""
-    counts = np.bincount(y_idx, minlength=k).astype(float)
-    per_class = len(y_idx) / (k * np.maximum(counts, 1.0))
-    return per_class[y_idx]
 
 
 def margins_from_decision(F: np.ndarray, y_idx: np.ndarray) -> np.ndarray:

@@ -159,7 +159,7 @@ def fit_margins(
     F[fit_rows] = model.training_decision()
     others = np.flatnonzero(~fit_mask)
     if len(others):
-        F[others] = model.decision_function(X[others])
+        F[others] = model.decision_matrix(X[others])
     margin = margins_from_decision(F, y_all)
     slack = np.maximum(0.0, 1.0 - margin)
 
@@ -175,7 +175,7 @@ def fit_margins(
             Xf,
             fit_idx,
             len(classes),
-            make_model,
+            make_model(),
             folds,
             settings.seed,
             report=report.slice(fit_end, 0.98),

@@ -7,9 +7,9 @@ training; a model that never saw the row has no such blind spot.
 from __future__ import annotations
 
 import warnings
-from collections.abc import Callable
 
 import numpy as np
+from sklearn.base import BaseEstimator, clone
 from sklearn.model_selection import StratifiedKFold
 
 from reviewer.core.progress import Reporter
@@ -41,12 +41,17 @@ def heldout_decision(
     X: np.ndarray,
     y_idx: np.ndarray,
     n_classes: int,
-    make_model: Callable[[], object],
+    estimator: BaseEstimator,
     folds: int,
     seed: int,
     report: Reporter | None = None,
 ) -> tuple[np.ndarray, list[str]]:
-    """(n, K) out-of-fold decision values; NaN for a class absent from a fold's training rows."""
+    """(n, K) out-of-fold decision values; NaN for a class absent from a fold's training rows.
+
+    Each fold fits ``clone(estimator)``. The loop is ours rather than cross_val_predict's so a
+    long fit reports progress per fold, honours a cancel between folds, and leaves NaN (not an
+    error) for a class that a fold's training rows lack.
+    """
     report = report or Reporter()
     k, notes = effective_folds(y_idx, folds)
     out = np.full((len(y_idx), n_classes), np.nan)
@@ -61,10 +66,10 @@ def heldout_decision(
         present = np.unique(y_idx[train])
         if len(present) < 2:
             continue
-        model = make_model()
-        # Fit on class names so a missing class maps back to the right column.
-        model.fit(X[train], y_idx[train].astype(str), report=sub)
-        F = model.decision_function(X[test])
+        model = clone(estimator)
+        # Fit on class indices so a missing class maps back to the right column.
+        model.fit(X[train], y_idx[train], report=sub)
+        F = model.decision_matrix(X[test])
         cols = model.classes_.astype(int)
         block = np.full((len(test), n_classes), np.nan)
         if len(cols) == 2 and n_classes > 2:
