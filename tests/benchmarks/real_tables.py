@@ -79,7 +79,7 @@ TABLES = (
     ("Caravan", "ISLR", "Caravan", "Purchase", (), "1:16 imbalance, 85 columns, 5,822 rows"),
     ("Default", "ISLR", "Default", "default", (), "1:29 imbalance, 3 columns, 10,000 rows"),
 )
-MAX_ROWS = 6000
+MAX_ROWS = 4000
 RATES = (0.03, 0.10)
 SEEDS = (0, 1, 2)
 NOISES = ("uniform", "class_conditional")

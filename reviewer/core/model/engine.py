@@ -47,6 +47,8 @@ SOLVERS = ("auto", "exact", "approximate")
 # large C adds iterations; it is used up to RBF_EXACT_ROWS rows (n^2 doubles in the cache) and
 # n^2 * d * sqrt(max(C, 1)) <= RBF_EXACT_WORK, the Nystroem map beyond.
 LINEAR_EXACT_WORK = 2_500
+# A fit predicted to take longer than this says so in its progress and summary notes.
+SLOW_SCAN_SECONDS = 60.0
 # Problems this small stay exact whatever C: exact alpha (KKT) matter more than a second.
 EXACT_ROWS_ALWAYS = 500
 RBF_EXACT_WORK = 1e10
@@ -175,6 +177,24 @@ def choose_solver(n: int, d: int, kernel: str, C: float) -> str:
     return "exact"
 
 
+def predicted_scan_seconds(n: int, d: int, k: int, kernel: str, C: float, folds: int) -> float:
+    """Rough wall time of a scan (full fit plus held-out folds) on 2 cores, from the
+    measurements in tests/benchmarks/results/scan_grid_speed.md; for warnings, not promises."""
+    problems = 1 if k == 2 else k
+
+    def one(rows: int) -> float:
+        solver = choose_solver(rows, d, kernel, C)
+        if solver == "approximate":
+            return (0.5 if kernel == "linear" else 5.0) * rows / 40_000 + 0.05
+        cached = rows <= RBF_EXACT_ROWS
+        per_gig = 0.4 if cached else 5.0
+        return per_gig * predicted_exact_work(rows, d, "rbf", C) / 1e9 + 0.01
+
+    # One fit on every row, then one per fold on (folds - 1) / folds of them.
+    fold_rows = int(n * (folds - 1) / folds) if folds else 0
+    return problems * (one(n) + folds * one(fold_rows))
+
+
 def fit_binary(
     X: np.ndarray,
     ypm: np.ndarray,
@@ -287,6 +307,10 @@ def fit_binary_large(
     )
 
 
+class SingleClassError(InputError, ValueError):
+    """Fewer than two classes to fit; a ValueError too, as scikit-learn's conventions expect."""
+
+
 class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
     """Soft-margin SVM, one problem per class against the rest (a single problem for two classes).
 
@@ -331,7 +355,7 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
         self.classes_, y_idx = np.unique(y, return_inverse=True)
         k = len(self.classes_)
         if k < 2:
-            raise InputError(
+            raise SingleClassError(
                 f"need at least two classes to fit; found {k} class "
                 f"({', '.join(map(str, self.classes_))})"
             )
@@ -379,7 +403,8 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
         return F[:, 1] if len(self.classes_) == 2 else F
 
     def predict(self, X: np.ndarray) -> np.ndarray:
-        return self.classes_[np.argmax(self.decision_matrix(X), axis=1)]
+        F = self.decision_matrix(X)
+        return self.classes_[np.argmax(F, axis=1)]
 
     def training_decision(self) -> np.ndarray:
         if len(self.classes_) == 2:

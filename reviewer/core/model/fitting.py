@@ -23,7 +23,7 @@ from reviewer.core.model.engine import (
     support_kinds,
     zones_from_slack,
 )
-from reviewer.core.model.heldout import heldout_decision
+from reviewer.core.model.heldout import calibrated_suspicion, heldout_decision
 from reviewer.core.model.tuning import choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
 
@@ -69,6 +69,15 @@ def fit_margins(
 
     Rows left out of the fit (unlabelled or excluded) still get decision values, so an
     excluded row's margin is what a model that never saw it thinks of its label.
+
+    The ranking ``score`` (higher = more suspect) with the default ``score="heldout"``:
+    1 - p(given label), where p is a calibrated probability computed from the row's
+    held-out decision values (soft-margin models fitted on the other folds), by a
+    multinomial logistic calibration (Platt scaling for two classes) that is itself
+    cross-fitted (heldout.calibrated_suspicion). Where that cannot be fitted (a class with
+    fewer than 5 rows) the score is the negated held-out margin; with ``score="training"``
+    or ``folds=0`` it is the negated training margin. Margin, slack, zone and support stay
+    those of the one fitted soft-margin model.
     """
     started = time.perf_counter()
     settings = FitSettings(**settings.to_dict()).validate()
@@ -131,6 +140,17 @@ def fit_margins(
         )
 
     folds = int(resolved["folds"])
+    expected = engine.predicted_scan_seconds(
+        len(fit_rows), X.shape[1], len(classes), resolved["kernel"], float(resolved["C"]), folds
+    )
+    if expected > engine.SLOW_SCAN_SECONDS:
+        slow = (
+            f"this fit is predicted to take about {expected / 60:.0f} minute(s) "
+            f"({resolved['kernel']} kernel, {len(fit_rows):,} rows, {len(classes)} classes); "
+            "a linear kernel or fewer folds is much faster"
+        )
+        notes.append(slow)
+        report(main_start, slow)
     fit_end = main_start + (1.0 - main_start) * (0.25 if folds else 0.9)
     model = make_model().fit(
         Xf, labels[fit_rows].astype(str), report=report.slice(main_start, fit_end)
@@ -191,6 +211,12 @@ def fit_margins(
     # margin as score, so a labelled row is never left without a rank.
     basis = np.where(np.isnan(held_margin), margin, held_margin) if use_heldout else margin
     score = -basis
+    calibrated = (
+        calibrated_suspicion(F_held, y_all, fit_mask, settings.seed) if use_heldout else None
+    )
+    if calibrated is not None:
+        # The default score: 1 - calibrated held-out probability of the given label.
+        score = calibrated
     F_suggest = F_held if use_heldout else F
     suggest_cols = np.where(np.isnan(F_suggest), -np.inf, F_suggest)
     suggested = classes[np.argmax(suggest_cols, axis=1)].astype(object)

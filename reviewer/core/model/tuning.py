@@ -1,16 +1,17 @@
 """The ``auto`` setting and the C curve: choose kernel, C and gamma by cross-validation.
 
-The grid is small on purpose so ``auto`` stays quick:
+The grid is small on purpose so ``auto`` stays quick and its work is bounded
+(15 candidates x 3 folds on at most ``TUNE_ROWS`` rows, whatever the table's size):
 
-* linear: C in {0.01, 0.1, 1} (LIBSVM's linear solve slows sharply at large C on overlapping
-  classes, and the curve rarely improves beyond C = 1 on standardised features)
+* linear: C in {0.01, 0.1, 1}
 * rbf:    C in {0.1, 1, 10, 100} x gamma in {1/4, 1, 4} times the 'scale' gamma
 
-Each candidate is scored by mean balanced accuracy over stratified folds on at most
-``TUNE_ROWS`` rows (a stratified sample beyond that). The choice is the simplest candidate
-(smallest C, then linear before rbf, then gamma nearest 'scale') within one standard error of
-the best score. On planted-flip benchmarks this beat "highest score wins", which picks a large
-C that bends around wrong labels (tests/benchmarks/results/detection.md).
+The search is scikit-learn's GridSearchCV over stratified folds, scored by balanced
+accuracy, with ``one_standard_error_index`` as its refit rule: per kernel the simplest
+candidate within one standard error of that kernel's best, and a flexible kernel only when
+it is clearly better than linear. On planted-flip benchmarks this beat "highest score
+wins", which picks a large C or a flexible kernel that bends around wrong labels
+(tests/benchmarks/results/detection.md, real_tables.md).
 """
 
 from __future__ import annotations
@@ -119,7 +120,7 @@ def one_standard_error_index(cv_results: dict) -> int:
     """GridSearchCV ``refit`` callable: the simplest candidate within one standard error.
 
     One-standard-error rule (Breiman et al. 1984; Hastie, Tibshirani & Friedman, ESL 7.10),
-    applied per kernel: the smallest C (then gamma nearest 'scale') whose mean balanced
+    applied per kernel: the smallest C (then the smallest gamma) whose mean balanced
     accuracy is within one standard error of that kernel's best. An rbf pick replaces the
     linear pick only if its best score is above the linear best by more than
     max(one standard error, FLEXIBLE_MARGIN). Scored on noisy labels, a large C and a
@@ -136,7 +137,8 @@ def one_standard_error_index(cv_results: dict) -> int:
         top = max(rows, key=lambda i: (mean[i], -params[i]["C"]))
         floor = mean[top] - se[top]
         ok = [i for i in rows if mean[i] >= floor]
-        pick = min(ok, key=lambda i: (params[i]["C"], abs(np.log(params[i].get("_f", 1.0)))))
+        # Simpler = smaller C, then smaller gamma (a smoother boundary).
+        pick = min(ok, key=lambda i: (params[i]["C"], params[i].get("_f", 1.0)))
         picks[kernel] = (pick, float(mean[top]), float(se[top]))
     if "linear" not in picks:
         return next(iter(picks.values()))[0]
