@@ -8,7 +8,7 @@ import time
 from collections.abc import Sequence
 from pathlib import Path
 
-from reviewer import __version__
+from reviewer._version import __version__
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
 

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from reviewer import __version__
+from reviewer._version import __version__
 from reviewer.core import values
 from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import LoadedTable, label_strings, load_table, sha256_of
