@@ -8,7 +8,7 @@ import time
 from collections.abc import Sequence
 from pathlib import Path
 
-from reviewer import __version__
+from reviewer._version import __version__
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
 
@@ -133,9 +133,8 @@ def _one_line(text: str) -> str:
 
 
 def _scan(args: argparse.Namespace) -> int:
-    from reviewer.core.data.loading import load_table
-    from reviewer.core.model.engine import FitSettings
-    from reviewer.core.model.scan import scan_table
+    from reviewer.core.door import scan_file
+    from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
     settings = FitSettings(
@@ -148,8 +147,7 @@ def _scan(args: argparse.Namespace) -> int:
         seed=args.seed,
         score=args.score,
     ).validate()
-    loaded = load_table(args.data)
-    outcome = scan_table(loaded, args.label, id_column=args.id_column, settings=settings)
+    outcome = scan_file(args.data, args.label, id_column=args.id_column, settings=settings)
     table = outcome.table
     if args.out:
         Path(args.out).write_text(table.to_csv(index=False), encoding="utf-8")
@@ -157,15 +155,15 @@ def _scan(args: argparse.Namespace) -> int:
         table.to_csv(sys.stdout, index=False)
     s = outcome.fit.summary
     used = outcome.fit.settings
-    zones = ", ".join(f"{k} {v}" for k, v in s["zone_counts"].items())
-    gamma = f", gamma={used['gamma_value']:.4g}" if used["kernel"] != "linear" else ""
+    zones = ", ".join(f"{k} {v}" for k, v in s.zone_counts.items())
+    gamma = f", gamma={used.gamma_value:.4g}" if used.kernel != "linear" else ""
     lines = [
-        f"rows: {s['n_rows']} ({s['n_fitted']} fitted, {s['n_unlabelled']} unlabelled)",
-        f"classes: {', '.join(f'{c} ({n})' for c, n in s['class_counts'].items())}",
+        f"rows: {s.n_rows} ({s.n_fitted} fitted, {s.n_unlabelled} unlabelled)",
+        f"classes: {', '.join(f'{c} ({n})' for c, n in s.class_counts.items())}",
         f"zones: {zones}",
-        f"settings: kernel={used['kernel']}, C={float(used['C']):g}{gamma}, folds={used['folds']}, "
-        f"score={used['score']}",
-        *[f"note: {n}" for n in s["notes"]],
+        f"settings: kernel={used.kernel}, C={float(used.C or 0):g}{gamma}, folds={used.folds}, "
+        f"score={used.score}",
+        *[f"note: {n}" for n in s.notes],
         f"time: {time.perf_counter() - started:.2f} s",
     ]
     sys.stderr.write("\n".join(lines) + "\n")
@@ -175,17 +173,15 @@ def _scan(args: argparse.Namespace) -> int:
 def _probe(args: argparse.Namespace) -> int:
     import json
 
-    from reviewer.core.data.loading import load_table
-    from reviewer.core.model.engine import FitSettings
-    from reviewer.core.model.probe import format_probe, probe_table
+    from reviewer.core.door import format_probe, probe_file
+    from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
     settings = FitSettings(
         kernel=args.kernel, C=args.C, folds=args.folds, seed=args.seed
     ).validate()
-    loaded = load_table(args.data)
-    result = probe_table(
-        loaded,
+    result = probe_file(
+        args.data,
         args.label,
         id_column=args.id_column,
         settings=settings,
@@ -200,7 +196,7 @@ def _probe(args: argparse.Namespace) -> int:
 
 
 def _export(args: argparse.Namespace) -> int:
-    from reviewer.core.review.session import export_session
+    from reviewer.core.door import export_session
 
     written = export_session(
         Path(args.session),

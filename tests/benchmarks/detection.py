@@ -33,8 +33,8 @@ from sklearn.preprocessing import StandardScaler
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 RESULTS = Path(__file__).resolve().parent / "results"
 RATES = (0.05, 0.10, 0.20, 0.30)
@@ -180,7 +180,7 @@ def svm_scores(X: np.ndarray, labels: np.ndarray, seed: int) -> tuple[dict, dict
     secs["auto"] = time.perf_counter() - t
     scores["auto"] = fit.rows["score"].to_numpy(float)
     scores["auto_training"] = -fit.rows["margin"].to_numpy(float)
-    chosen = f"{fit.settings['kernel']} C={float(fit.settings['C']):g}"
+    chosen = f"{fit.settings.kernel} C={float(fit.settings.C):g}"
     for kernel in ("linear", "rbf"):
         t = time.perf_counter()
         fit = fit_margins(X, lab, FitSettings(kernel=kernel, C=1.0, gamma="scale", seed=seed))

@@ -42,14 +42,14 @@ def run_case(method: str, n: int) -> dict:
     from sklearn.model_selection import StratifiedKFold, cross_val_predict
     from sklearn.svm import LinearSVC
 
-    from reviewer.core.model.engine import FitSettings
     from reviewer.core.model.fitting import fit_margins
+    from reviewer.core.values import FitSettings
 
     X, y = make_data(n)
     started = time.perf_counter()
     if method == "tool":
         result = fit_margins(X, y, FitSettings(kernel="linear", C=1.0, folds=5, solver="auto"))
-        solver = result.summary["problems"][0]["solver"]
+        solver = result.summary.problems[0]["solver"]
         assert np.isfinite(result.rows["heldout_margin"]).all(), "a row got no held-out margin"
     else:
         model = LinearSVC(C=1.0)

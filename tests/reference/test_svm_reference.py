@@ -27,13 +27,13 @@ from sklearn.preprocessing import StandardScaler
 from sklearn.svm import SVC
 
 from reviewer.core.model.engine import (
-    FitSettings,
     SoftMarginClassifier,
     fit_binary,
     resolve_gamma,
     support_kinds,
 )
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 DECISION_ATOL = 1e-3
 KKT_TOL = 1e-3
@@ -213,8 +213,8 @@ def test_rows_past_the_boundary_never_exceed_sum_of_slack(seed: int, C: float, k
     slack = result.rows["slack"].to_numpy()
     # Cortes & Vapnik 1995: #{xi_i > 1} <= sum_i xi_i (each such row contributes more than 1).
     assert np.sum(slack > 1) <= slack.sum() + 1e-9
-    assert result.summary["sum_slack"] == pytest.approx(slack.sum())
-    assert result.summary["zone_counts"]["wrong_side"] == int(np.sum(slack > 1))
+    assert result.summary.sum_slack == pytest.approx(slack.sum())
+    assert result.summary.zone_counts["wrong_side"] == int(np.sum(slack > 1))
 
 
 # --- Fisher's iris: what is separable and what is not ------------------------------------------
@@ -235,7 +235,7 @@ def test_iris_setosa_is_linearly_separable() -> None:
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1e4, folds=0))
     slack = result.rows["slack"].to_numpy()
     assert slack.max() <= 1e-3
-    assert result.summary["zone_counts"]["clear"] == 150
+    assert result.summary.zone_counts["clear"] == 150
 
 
 def test_iris_versicolor_virginica_overlap() -> None:
@@ -244,7 +244,7 @@ def test_iris_versicolor_virginica_overlap() -> None:
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1e4, folds=0))
     slack = result.rows["slack"].to_numpy()
     assert slack.max() > 0.1
-    assert result.summary["zone_counts"]["clear"] < 100
+    assert result.summary.zone_counts["clear"] < 100
 
 
 # --- Margin definitions ------------------------------------------------------------------------

@@ -12,8 +12,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from reviewer.core.model.engine import SUPPORTS, ZONES
 from reviewer.core.model.fitting import FitResult
+from reviewer.core.values import SUPPORTS, ZONES, FitSettings, display_name
 
 CAUTION = (
     "Accuracy here is measured against the labels as edited, which flatters the edits; "
@@ -23,47 +23,91 @@ CAUTION = (
 
 @dataclass
 class Comparison:
+    """Before (the baseline: labels as loaded) against after (the edited labels, fitted with
+    the baseline's settings, so the difference is the edits alone).
+
+    When the latest fit used other settings, ``metrics_new`` and ``new_settings`` describe
+    it: the edits and the new settings together.
+    """
+
     metrics: dict[str, tuple[Any, Any]]  # name -> (before, after)
-    changed_rows: pd.DataFrame  # rows whose zone changed
+    changed_rows: pd.DataFrame  # rows whose zone changed between before and after
+    before_settings: FitSettings
+    after_settings: FitSettings
+    metrics_new: dict[str, Any] | None = None  # name -> value for the latest fit
+    new_settings: FitSettings | None = None
+
+    @property
+    def settings_changed(self) -> bool:
+        return self.new_settings is not None
 
 
-def compare_fits(before: FitResult, after: FitResult) -> Comparison:
-    sb, sa = before.summary, after.summary
-    metrics: dict[str, tuple[Any, Any]] = {
-        "rows fitted": (sb.get("n_fitted"), sa.get("n_fitted")),
-        "held-out accuracy": (sb.get("heldout_accuracy"), sa.get("heldout_accuracy")),
-        "held-out balanced accuracy": (
-            sb.get("heldout_balanced_accuracy"),
-            sa.get("heldout_balanced_accuracy"),
-        ),
-        "training accuracy": (sb.get("training_accuracy"), sa.get("training_accuracy")),
-        "sum of slacks": (sb.get("sum_slack"), sa.get("sum_slack")),
+def fit_metrics(fit: FitResult, baseline: FitResult | None = None) -> dict[str, Any]:
+    """The numbers the comparison shows for one fit (model's labels counted against
+    ``baseline``'s when given)."""
+    s = fit.summary
+    out: dict[str, Any] = {
+        "rows fitted": s.n_fitted,
+        "held-out accuracy": s.heldout_accuracy,
+        "held-out balanced accuracy": s.heldout_balanced_accuracy,
+        "training accuracy": s.training_accuracy,
+        "sum of slacks": s.sum_slack,
     }
     for z in ZONES:
-        metrics[f"rows {z}"] = (sb["zone_counts"].get(z), sa["zone_counts"].get(z))
-    for s in SUPPORTS:
-        metrics[f"rows {s}"] = (sb["support_counts"].get(s), sa["support_counts"].get(s))
-    if "margin_width" in sb or "margin_width" in sa:
-        metrics["margin width 2/||w||"] = (sb.get("margin_width"), sa.get("margin_width"))
-    sug_b = before.rows["suggested_label"].to_numpy()
-    sug_a = after.rows["suggested_label"].to_numpy()
-    changed_suggestion = int(np.sum(np.array([a != b for a, b in zip(sug_b, sug_a, strict=True)])))
-    metrics["rows whose suggested label changed"] = (0, changed_suggestion)
+        out[f"rows {display_name(z)}"] = s.zone_counts.get(z)
+    for k in SUPPORTS:
+        out[f"rows {display_name(k)}"] = s.support_counts.get(k)
+    if s.margin_width is not None:
+        out["margin width 2/||w||"] = s.margin_width
+    if baseline is not None:
+        mine = fit.rows["model_label"].to_numpy()
+        theirs = baseline.rows["model_label"].to_numpy()
+        out["rows whose model's label changed"] = int(
+            np.sum(np.fromiter((a != b for a, b in zip(theirs, mine, strict=True)), dtype=bool))
+        )
+    return out
+
+
+def compare_fits(
+    before: FitResult,
+    after: FitResult,
+    *,
+    new: FitResult | None = None,
+    labels: np.ndarray | None = None,
+) -> Comparison:
+    """``after`` should be the edited labels fitted with ``before``'s settings; ``new`` the
+    latest fit when its settings differ. ``labels`` (the current ones) go into the changed
+    rows table."""
+    mb = fit_metrics(before)
+    mb["rows whose model's label changed"] = 0
+    ma = fit_metrics(after, before)
+    metrics = {k: (mb.get(k), ma.get(k)) for k in dict.fromkeys([*mb, *ma])}
+    sug_b = before.rows["model_label"].to_numpy()
+    sug_a = after.rows["model_label"].to_numpy()
     zb = before.rows["zone"].to_numpy()
     za = after.rows["zone"].to_numpy()
     moved = np.flatnonzero((zb != za) & (zb != "") & (za != ""))
-    changed = pd.DataFrame(
+    table: dict[str, Any] = {"row": moved}
+    if labels is not None:
+        table["label"] = np.asarray(labels, dtype=object)[moved]
+    table.update(
         {
-            "row": moved,
             "zone_before": zb[moved],
             "zone_after": za[moved],
             "slack_before": before.rows["slack"].to_numpy()[moved],
             "slack_after": after.rows["slack"].to_numpy()[moved],
-            "suggested_before": sug_b[moved],
-            "suggested_after": sug_a[moved],
+            "model_label_before": sug_b[moved],
+            "model_label_after": sug_a[moved],
         }
     )
-    return Comparison(metrics=metrics, changed_rows=changed)
+    return Comparison(
+        metrics=metrics,
+        changed_rows=pd.DataFrame(table),
+        before_settings=before.settings,
+        after_settings=after.settings,
+        metrics_new=None if new is None else fit_metrics(new, before),
+        new_settings=None if new is None else new.settings,
+    )
 
 
 def score_on_reference(
@@ -74,9 +118,9 @@ def score_on_reference(
     id_col: str,
     label_col: str,
 ) -> dict[str, Any]:
-    """Score both fits' suggested labels against trusted labels, rows matched by id.
+    """Score both fits' model labels against trusted labels, rows matched by id.
 
-    Only rows present in the reference, with a trusted label and a suggestion from both fits,
+    Only rows present in the reference, with a trusted label and a model's label from both fits,
     are scored, so before and after are measured on the same rows. Returns
     {"matched", "unmatched_reference", "before": {accuracy, balanced_accuracy},
     "after": {...}}.
@@ -95,8 +139,8 @@ def score_on_reference(
     ref = reference[[id_col, label_col]].dropna()
     trusted = dict(zip(ref[id_col].astype(str), ref[label_col].astype(str), strict=True))
     ids = [str(v) for v in np.asarray(session_ids)]
-    sug_b = baseline_rows["suggested_label"].to_numpy()
-    sug_a = latest_rows["suggested_label"].to_numpy()
+    sug_b = baseline_rows["model_label"].to_numpy()
+    sug_a = latest_rows["model_label"].to_numpy()
     # A fit gives no suggestion for a row it could not score (None, or NaN once stored).
     has_both = ~pd.isna(sug_b) & ~pd.isna(sug_a)
     rows = [i for i, rid in enumerate(ids) if rid in trusted and has_both[i]]
@@ -108,7 +152,7 @@ def score_on_reference(
     for name, sug in (("before", sug_b), ("after", sug_a)):
         pred = [str(sug[i]) for i in rows]
         with warnings.catch_warnings():
-            # A suggested class the reference never uses is simply wrong on those rows.
+            # A predicted class the reference never uses is simply wrong on those rows.
             warnings.simplefilter("ignore", UserWarning)
             out[name] = {
                 "accuracy": float(accuracy_score(truth, pred)) if rows else float("nan"),

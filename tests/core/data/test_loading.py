@@ -13,8 +13,8 @@ from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import label_strings, load_table
 from reviewer.core.data.roles import infer_roles
 from reviewer.core.errors import InputError
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 ROWS = [
     ["r1", "1.5", "crème", "yes"],
@@ -191,11 +191,11 @@ def test_unlabelled_rows_are_kept_and_left_out_of_the_fit(tmp_path: Path) -> Non
     X, _ = feature_matrix(loaded.frame, roles)
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1.0, folds=3))
     s = result.summary
-    assert (s["n_rows"], s["n_fitted"], s["n_unlabelled"]) == (n, n - 3, 3)
+    assert (s.n_rows, s.n_fitted, s.n_unlabelled) == (n, n - 3, 3)
     rows = result.rows
     # An unlabelled row has no margin against a label, but the model still suggests one.
     assert rows.loc[[3, 17, 40], "margin"].isna().all()
     assert rows.loc[[3, 17, 40], "alpha"].isna().all()
     assert (rows.loc[[3, 17, 40], "rank"] == 0).all()
-    assert rows.loc[[3, 17, 40], "suggested_label"].notna().all()
+    assert rows.loc[[3, 17, 40], "model_label"].notna().all()
     assert np.isfinite(rows["margin"].drop(index=[3, 17, 40])).all()

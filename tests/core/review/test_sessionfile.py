@@ -37,7 +37,7 @@ def session(tmp_path: Path) -> Path:
     path = tmp_path / "review.mrs"
     state = LabelState(np.array(["a", "b", "a", "b"], dtype=object))
     with SessionFile.create(path, META) as sf:
-        for action, rows in (("relabel", [0]), ("exclude", [1, 2]), ("keep", [3])):
+        for action, rows in (("relabel", [0]), ("exclude", [1, 2]), ("confirm", [3])):
             state.apply(sf.append_event(state.make_edit(action, rows, reviewer="Dana", label="b")))
         sf.save_fit("baseline", {"C": 1.0}, {"errors": 3}, pd.DataFrame({"slack": [0.0, 1.5]}))
         sf.save_fit("latest", {"C": 2.0}, {"errors": 1}, pd.DataFrame({"slack": [0.2, 0.4]}))
@@ -60,8 +60,8 @@ def test_events_get_consecutive_seqs_and_come_back_equal(session):
     with SessionFile.open(session) as sf:
         events = sf.events()
         assert [e.seq for e in events] == [1, 2, 3]
-        assert [e.action for e in events] == ["relabel", "exclude", "keep"]
-        assert events[1].rows == (1, 2) and events[1].before == ("unreviewed", "unreviewed")
+        assert [e.action for e in events] == ["relabel", "exclude", "confirm"]
+        assert events[1].rows == (1, 2) and events[1].before == ("open", "open")
         state = LabelState.replay(np.array(["a", "b", "a", "b"], dtype=object), events)
         added = sf.append_event(state.make_undo(reviewer="Dana"))
         assert (added.seq, added.target) == (4, 3)
@@ -95,7 +95,7 @@ def test_second_writer_in_same_process_is_refused_and_reader_allowed(session):
             SessionFile.open(session)
         assert str(session) in str(err.value) and "elsewhere" in str(err.value)
         with SessionFile.open(session, read_only=True) as reader:
-            writer.append_event(LabelState(["a"] * 4).make_edit("keep", [0], reviewer="x"))
+            writer.append_event(LabelState(["a"] * 4).make_edit("confirm", [0], reviewer="x"))
             assert reader.last_seq() == 4  # a reader sees commits made after it opened
     with SessionFile.open(session) as again:  # released on close
         assert not again.read_only
@@ -186,21 +186,23 @@ def test_newer_schema_is_refused_with_versions_named(session):
     conn = sqlite3.connect(session)
     conn.execute("PRAGMA user_version = 99")
     conn.close()
-    _refused_untouched(session, "schema version 99.*reads up to 1")
+    _refused_untouched(session, "schema version 99.*reads up to 2")
 
 
 def test_older_schema_is_upgraded_on_open_for_writing(session, monkeypatch):
     def add_labels_table(conn: sqlite3.Connection) -> None:
         conn.execute("CREATE TABLE class_names (name TEXT)")
 
-    # Pretend this program knows a schema 2; the file on disk is version 1.
-    monkeypatch.setitem(sessionfile.MIGRATIONS, 2, add_labels_table)
+    # Pretend this program knows a schema 3 that older files cannot be read as; the file
+    # on disk is version 2.
+    monkeypatch.setitem(sessionfile.MIGRATIONS, 3, add_labels_table)
+    monkeypatch.setattr(sessionfile, "READABLE_FROM", 3)
     with pytest.raises(SessionError, match="cannot be upgraded"):
         SessionFile.open(session, read_only=True)
     with SessionFile.open(session) as sf:
         assert len(sf.events()) == 3
     conn = sqlite3.connect(session)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == 2
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == 3
     assert conn.execute("SELECT count(*) FROM class_names").fetchone()[0] == 0
     conn.close()
 
@@ -210,11 +212,11 @@ def test_failed_upgrade_leaves_the_old_version(session, monkeypatch):
         conn.execute("CREATE TABLE half_done (x)")
         raise RuntimeError("upgrade step failed")
 
-    monkeypatch.setitem(sessionfile.MIGRATIONS, 2, broken)
+    monkeypatch.setitem(sessionfile.MIGRATIONS, 3, broken)
     with pytest.raises(RuntimeError):
         SessionFile.open(session)
     conn = sqlite3.connect(session)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == 1
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == 2
     names = {r[0] for r in conn.execute("SELECT name FROM sqlite_master")}
     assert "half_done" not in names
     conn.close()
@@ -242,7 +244,7 @@ def test_read_only_location_opens_read_only_with_a_message(session, monkeypatch)
             assert len(sf.events()) == 3
             assert sf.load_fit("latest").settings == {"C": 2.0}
             with pytest.raises(SessionError, match="read-only"):
-                sf.append_event(LabelState(["a"]).make_edit("keep", [0], reviewer="x"))
+                sf.append_event(LabelState(["a"]).make_edit("confirm", [0], reviewer="x"))
     finally:
         os.chmod(folder, 0o755)
         os.chmod(session, 0o644)
@@ -262,7 +264,7 @@ def test_saved_event_cannot_be_appended_twice_and_numpy_values_are_stored(sessio
         with pytest.raises(SessionError, match="already in the log"):
             sf.append_event(first)
         ev = LabelState(np.array([1, 2], dtype=object)).make_edit(
-            "keep", [np.int64(1)], reviewer="x", slack=[np.float32(0.5)]
+            "confirm", [np.int64(1)], reviewer="x", slack=[np.float32(0.5)]
         )
         saved = sf.append_event(ev)
         assert sf.events(after_seq=3) == [saved] and saved.slack == (0.5,)
@@ -285,7 +287,7 @@ def test_fit_worker_thread_may_write_while_window_thread_appends(session):
         t.start()
         state = LabelState(["a"] * 4)
         for _ in range(5):
-            sf.append_event(state.make_edit("keep", [0], reviewer="x"))
+            sf.append_event(state.make_edit("confirm", [0], reviewer="x"))
         t.join()
         assert not errors
         assert sf.last_seq() == 8 and sf.load_fit("latest").settings == {"i": 4}
