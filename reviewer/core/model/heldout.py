@@ -83,6 +83,9 @@ def heldout_decision(
 # Calibration folds: the calibrator is itself cross-fitted so no row's probability comes
 # from a calibrator that saw that row.
 CALIBRATION_FOLDS = 5
+# Inverse L2 strength of the calibrator. On the 214-row glass table C=1 ranked planted flips
+# far better than a nearly unregularised fit (AP 0.53 against 0.28, uniform 10% flips).
+CALIBRATION_C = 1.0
 
 
 def calibrated_suspicion(
@@ -102,6 +105,7 @@ def calibrated_suspicion(
     """
     from sklearn.linear_model import LogisticRegression
     from sklearn.model_selection import cross_val_predict
+    from threadpoolctl import threadpool_limits
 
     n_classes = F_held.shape[1]
     fit = fit_mask & (y_idx >= 0)
@@ -110,14 +114,18 @@ def calibrated_suspicion(
     if counts.min() < CALIBRATION_FOLDS or not np.isfinite(F_held[fit | other]).all():
         return None
     Z = F_held[:, 1:] if n_classes == 2 else F_held
-    calibrator = LogisticRegression(C=100.0, max_iter=1000)
+    calibrator = LogisticRegression(
+        C=CALIBRATION_C, solver="newton-cholesky", tol=1e-8, max_iter=200
+    )
     cv = StratifiedKFold(n_splits=CALIBRATION_FOLDS, shuffle=True, random_state=seed)
     out = np.full(len(y_idx), np.nan)
     rows = np.flatnonzero(fit)
-    proba = cross_val_predict(calibrator, Z[rows], y_idx[rows], cv=cv, method="predict_proba")
-    out[rows] = 1.0 - proba[np.arange(len(rows)), y_idx[rows]]
-    if other.any():
-        rows = np.flatnonzero(other)
-        proba = calibrator.fit(Z[fit], y_idx[fit]).predict_proba(Z[rows])
+    # One BLAS thread: these are tiny problems, and on 2 busy cores threads measured 15x slower.
+    with threadpool_limits(limits=1, user_api="blas"):
+        proba = cross_val_predict(calibrator, Z[rows], y_idx[rows], cv=cv, method="predict_proba")
         out[rows] = 1.0 - proba[np.arange(len(rows)), y_idx[rows]]
+        if other.any():
+            rows = np.flatnonzero(other)
+            proba = calibrator.fit(Z[fit], y_idx[fit]).predict_proba(Z[rows])
+            out[rows] = 1.0 - proba[np.arange(len(rows)), y_idx[rows]]
     return out
