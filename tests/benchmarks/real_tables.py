@@ -385,7 +385,22 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--max-rows", type=int, default=MAX_ROWS)
     parser.add_argument("--seeds", type=int, default=len(SEEDS))
     parser.add_argument("--notes-file", help="markdown paragraph(s) to include as notes")
+    parser.add_argument("--from-json", help="rewrite the markdown of an earlier run's JSON")
     args = parser.parse_args(argv)
+    if args.from_json:
+        src = Path(args.from_json)
+        data = json.loads(src.read_text(encoding="utf-8"))
+        notes = Path(args.notes_file).read_text(encoding="utf-8") if args.notes_file else ""
+        write_markdown(
+            src.with_suffix(".md"),
+            data["header"],
+            data["tables"],
+            data["per_table"],
+            data["per_cell"],
+            data["verdicts"],
+            notes,
+        )
+        return 0
     started = time.perf_counter()
     if args.smoke:
         tables, rates, seeds, noises = ("penguins",), (0.10,), (0,), ("uniform",)
