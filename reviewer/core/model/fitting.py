@@ -18,7 +18,7 @@ from reviewer.core.model.engine import (
     support_kinds,
     zones_from_slack,
 )
-from reviewer.core.model.heldout import calibrated_suspicion, heldout_decision
+from reviewer.core.model.heldout import heldout_decision
 from reviewer.core.model.tuning import choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings, FitSummary
@@ -66,14 +66,13 @@ def fit_margins(
     Rows left out of the fit (unlabelled or excluded) still get decision values, so an
     excluded row's margin is what a model that never saw it thinks of its label.
 
-    The ranking ``score`` (higher = more suspect) with the default ``score="heldout"``:
-    1 - p(given label), where p is a calibrated probability computed from the row's
-    held-out decision values (soft-margin models fitted on the other folds), by a
-    multinomial logistic calibration (Platt scaling for two classes) that is itself
-    cross-fitted (heldout.calibrated_suspicion). Where that cannot be fitted (a class with
-    fewer than 5 rows) the score is the negated held-out margin; with ``score="training"``
-    or ``folds=0`` it is the negated training margin. Margin, slack, zone and support stay
-    those of the one fitted soft-margin model.
+    The ranking ``score`` (higher = more suspect) with the default ``score="heldout"`` is
+    minus the row's held-out margin: f_y(x) - max_{k != y} f_k(x) (y f(x) for two classes)
+    from the soft-margin model of the cross-fitting fold that did not see the row, so 1 + score
+    is the held-out slack where positive. Where a held-out margin is empty (a class with a
+    single row) the training margin stands in; with ``score="training"`` or ``folds=0`` the
+    score is minus the training margin. A calibrated probability of the given label was
+    measured as an alternative and not adopted (tests/benchmarks/results/real_tables.md).
     """
     started = time.perf_counter()
     settings = FitSettings(**settings.to_dict()).validate()
@@ -207,12 +206,6 @@ def fit_margins(
     # margin as score, so a labelled row is never left without a rank.
     basis = np.where(np.isnan(held_margin), margin, held_margin) if use_heldout else margin
     score = -basis
-    calibrated = (
-        calibrated_suspicion(F_held, y_all, fit_mask, settings.seed) if use_heldout else None
-    )
-    if calibrated is not None:
-        # The default score: 1 - calibrated held-out probability of the given label.
-        score = calibrated
     F_suggest = F_held if use_heldout else F
     suggest_cols = np.where(np.isnan(F_suggest), -np.inf, F_suggest)
     suggested = classes[np.argmax(suggest_cols, axis=1)].astype(object)
