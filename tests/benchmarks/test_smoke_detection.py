@@ -16,6 +16,7 @@ METHOD_NAMES = (
     "rbf_training",
     "rbf_heldout",
     "logreg_oof",
+    "hgb_oof",
     "knn_oof",
     "random",
 )
