@@ -204,6 +204,16 @@ def fit_binary(
     )
 
 
+def nystroem_components(n: int) -> int:
+    """Landmarks for the Nystroem map: 500 up to 10,000 rows, then fewer (as 1/sqrt(n), at
+    least 200) so a fold fit stays within seconds. Each Newton step costs about rows in the
+    margin band x landmarks^2; on 40,000 resampled Caravan rows 500 landmarks took 8-13 s a
+    fit (43-92 steps)."""
+    if n <= 10_000:
+        return 500
+    return max(200, int(500 * np.sqrt(10_000 / n)))
+
+
 def fit_binary_large(
     X: np.ndarray,
     ypm: np.ndarray,
@@ -234,7 +244,9 @@ def fit_binary_large(
             converged=bool(res.converged),
             n_iter=int(res.n_iter),
         )
-    approx = solvers.fit_rbf_approx(X, ypm, C, gamma, sample_weight=sample_weight)
+    approx = solvers.fit_rbf_approx(
+        X, ypm, C, gamma, sample_weight=sample_weight, n_components=nystroem_components(len(ypm))
+    )
     f = approx.decision_function(X)
     m = ypm * f
     alpha = np.where(m < 1.0, upper, np.where(m > 1.0, 0.0, 0.5 * upper))
