@@ -68,9 +68,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--smoke", action="store_true", help="2,000 rows, two settings")
     parser.add_argument("--out-dir", default=str(RESULTS))
     parser.add_argument("--real-only", action="store_true", help="only the Caravan table")
+    parser.add_argument("--only", help="only settings whose label starts with this")
     args = parser.parse_args(argv)
     rows = 2000 if args.smoke else args.rows
     grid = settings_grid()[:2] if args.smoke else settings_grid()
+    if args.only:
+        grid = [g for g in grid if g[0].startswith(args.only)]
     records = []
     chosen_tables = tables(rows)
     if args.real_only:
@@ -98,6 +101,8 @@ def main(argv: list[str] | None = None) -> int:
     out = Path(args.out_dir)
     out.mkdir(parents=True, exist_ok=True)
     stem = "scan_grid_speed_smoke" if args.smoke else "scan_grid_speed"
+    if args.only:
+        stem += "_" + args.only.split()[0]
     header = {
         "cores": os.cpu_count(),
         "python": platform.python_version(),

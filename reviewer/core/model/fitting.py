@@ -19,7 +19,7 @@ from reviewer.core.model.engine import (
     zones_from_slack,
 )
 from reviewer.core.model.heldout import heldout_decision
-from reviewer.core.model.tuning import choose_settings
+from reviewer.core.model.tuning import RBF_CS, choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings, FitSummary
 
@@ -100,11 +100,27 @@ def fit_margins(
     candidates: list[dict] = []
     Xf = X[fit_rows]
     if settings.kernel == "auto":
+        # Bound auto's work: no rbf C whose scan of this table is predicted over the budget.
+        rbf_cs = tuple(
+            c
+            for c in RBF_CS
+            if engine.predicted_scan_seconds(
+                len(fit_rows), X.shape[1], len(classes), "rbf", c, int(settings.folds)
+            )
+            <= engine.SLOW_SCAN_SECONDS
+        )
+        if len(rbf_cs) < len(RBF_CS):
+            left_out = ", ".join(f"{c:g}" for c in RBF_CS if c not in rbf_cs)
+            notes.append(
+                f"auto left out rbf with C={left_out}: predicted over "
+                f"{engine.SLOW_SCAN_SECONDS:.0f} s on {len(fit_rows):,} rows"
+            )
         best, tried = choose_settings(
             Xf,
             fit_idx,
             class_weight=settings.class_weight,
             seed=settings.seed,
+            rbf_cs=rbf_cs,
             report=report.slice(0.0, 0.3),
         )
         resolved.update(kernel=best.kernel, C=best.C, gamma=best.gamma if best.gamma else "scale")
