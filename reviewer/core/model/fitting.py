@@ -178,7 +178,8 @@ def fit_margins(
     ]
     if stopped:
         notes.append(
-            f"the solver stopped at its iteration limit ({engine.MAX_ITER:,} iterations) before "
+            f"the solver stopped at its iteration limit "
+            f"({engine.iteration_cap(len(fit_rows)):,} iterations) before "
             f"converging for {', '.join(stopped)}; margins and slacks are approximate"
         )
     report(fit_end, "scoring every row")
