@@ -156,7 +156,7 @@ def fit_margins(
     )
     if expected > engine.SLOW_SCAN_SECONDS:
         slow = (
-            f"this fit is predicted to take about {expected / 60:.0f} minute(s) "
+            f"this fit is predicted to take about {_duration(expected)} "
             f"({resolved['kernel']} kernel, {len(fit_rows):,} rows, {len(classes)} classes); "
             "a linear kernel or fewer folds is much faster"
         )
@@ -256,6 +256,10 @@ def fit_margins(
         model=model,
         decision=F,
     )
+
+
+def _duration(seconds: float) -> str:
+    return f"{seconds:.0f} s" if seconds < 120 else f"{seconds / 60:.0f} minutes"
 
 
 def ranks_from_score(score: np.ndarray, tie_break: np.ndarray | None = None) -> np.ndarray:
