@@ -327,11 +327,11 @@ class LabelState:
                     f"event {event.seq} undoes seq {event.target}, but the edit to undo is "
                     f"{self.undo_target()}"
                 )
-            top, snapshot = self._done.pop(), self._snapshots.pop()
-            if snapshot is None:
+            top, saved = self._done.pop(), self._snapshots.pop()
+            if saved is None:
                 self._labels, self._review = _final_state(self._source, self._done)
             else:
-                idx, labels, review = snapshot
+                idx, labels, review = saved
                 self._labels[idx] = labels
                 self._review[idx] = review
             self._undone.append(top)

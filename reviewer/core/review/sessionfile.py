@@ -530,7 +530,7 @@ class SessionFile:
                 "INSERT OR REPLACE INTO fit_rows VALUES (?, ?, 'parquet', ?)",
                 (slot, cur.lastrowid, blob),
             )
-            return int(cur.lastrowid)
+            return int(cur.lastrowid or 0)
 
         return self._write(f"save the {slot} fit", insert)
 
