@@ -136,6 +136,8 @@ def infer_kind(values: pd.Series) -> tuple[str, str]:
         return "ignore", "date or time (not used as a feature)"
     if pd.api.types.is_bool_dtype(s.dtype):
         return ("numeric", "") if present.nunique() > 1 else ("ignore", "constant")
+    if s.dtype == object and isinstance(present.iloc[0], (list, tuple, np.ndarray, dict)):
+        return "ignore", "a list or record per row (vector columns are not features yet)"
     n_unique = present.nunique()
     if n_unique <= 1:
         return "ignore", "constant"
