@@ -15,7 +15,7 @@ import numpy as np
 
 from reviewer.core.plain import plain
 
-__all__ = ["metrics_png", "slack_histogram_png"]
+__all__ = ["metrics_png", "slack_histogram_figure", "slack_histogram_png"]
 
 # Colour-blind-safe pair (Okabe & Ito's palette, common practice for charts).
 _BEFORE = "#999999"
@@ -46,6 +46,17 @@ def slack_histogram_png(
     what: str = "held-out slack",
     baseline: Sequence[float] | np.ndarray | None = None,
 ) -> bytes | None:
+    """slack_histogram_figure as PNG bytes; None when there is nothing to draw."""
+    fig = slack_histogram_figure(slack, what=what, baseline=baseline)
+    return None if fig is None else _png(fig)
+
+
+def slack_histogram_figure(
+    slack: Sequence[float] | np.ndarray,
+    *,
+    what: str = "held-out slack",
+    baseline: Sequence[float] | np.ndarray | None = None,
+) -> Any:
     """Histogram of the positive slacks with the slack = 1 line; None when nothing to draw.
 
     Rows with slack 0 (clear of the margin) are counted in the legend, not drawn: they are
@@ -88,7 +99,7 @@ def slack_histogram_png(
     ax.legend(loc="upper right", fontsize=8, frameon=False)
     ax.spines[["top", "right"]].set_visible(False)
     fig.tight_layout()
-    return _png(fig)
+    return fig
 
 
 def metrics_png(

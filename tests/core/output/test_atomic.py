@@ -4,6 +4,11 @@ from __future__ import annotations
 
 import errno
 import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -154,3 +159,96 @@ def test_new_file_gets_usual_permissions(tmp_path):
     mask = os.umask(0)
     os.umask(mask)
     assert out.stat().st_mode & 0o777 == 0o666 & ~mask
+
+
+def test_refusal_names_the_command_line_option(tmp_path):
+    src = simple_csv(tmp_path)
+    target = tmp_path / "out.csv"
+    target.write_bytes(b"yesterday")
+    with pytest.raises(ExportError, match=r"pass --overwrite \(overwrite=True in Python\)"):
+        export_cleaned(src, "label", ["a", "c"], np.zeros(2, bool), target)
+
+
+# -- leftovers of killed exports ----------------------------------------------------------------
+
+# A child process that starts an atomic write of 1 MiB and then, half way, either kills
+# itself (as kill -9 would) or says "writing" and waits for a line on stdin before finishing.
+_CHILD = """
+import os, signal, sys
+from reviewer.core.output.atomic import atomic_write
+mode, target = sys.argv[1], sys.argv[2]
+def write(stream):
+    stream.write(b"x" * (1 << 20))
+    if mode == "kill":
+        os.kill(os.getpid(), signal.SIGKILL)
+    print("writing", flush=True)
+    sys.stdin.readline()
+    stream.write(b"done")
+atomic_write(target, write)
+print("placed", flush=True)
+"""
+
+
+def _child(mode: str, target: Path) -> subprocess.Popen:
+    return subprocess.Popen(
+        [sys.executable, "-c", _CHILD, mode, str(target)],
+        stdin=subprocess.PIPE,
+        stdout=subprocess.PIPE,
+        text=True,
+        cwd=Path(__file__).resolve().parents[3],
+    )
+
+
+def _temporaries(folder: Path) -> list[Path]:
+    return sorted(p for p in folder.iterdir() if p.name.endswith(".partial"))
+
+
+@pytest.mark.skipif(not hasattr(signal, "SIGKILL"), reason="needs POSIX signals")
+def test_a_killed_export_leaves_a_temporary_the_next_export_removes(tmp_path):
+    src = simple_csv(tmp_path)
+    child = _child("kill", tmp_path / "out.csv")
+    child.communicate(timeout=60)
+    assert child.returncode == -signal.SIGKILL
+    left = _temporaries(tmp_path)
+    assert len(left) == 1 and left[0].name.startswith(".out.csv.mr-")
+    assert left[0].stat().st_size == 1 << 20  # the full-size leftover a user would find
+    assert not (tmp_path / "out.csv").exists()
+    # Any later export into the folder, of any file, cleans it up.
+    export_cleaned(src, "label", ["a", "c"], np.zeros(2, bool), tmp_path / "other.csv")
+    no_leftovers(tmp_path, {"d.csv", "other.csv"})
+
+
+@pytest.mark.skipif(atomic.fcntl is None, reason="needs advisory file locks")
+def test_a_running_export_keeps_its_temporary(tmp_path):
+    # Two exports at once: the second must not take the first's temporary for a leftover.
+    src = simple_csv(tmp_path)
+    child = _child("wait", tmp_path / "big.csv")
+    try:
+        assert child.stdout.readline().strip() == "writing"
+        running = _temporaries(tmp_path)
+        assert len(running) == 1
+        export_cleaned(src, "label", ["a", "c"], np.zeros(2, bool), tmp_path / "out.csv")
+        assert atomic.remove_stale_temporaries(tmp_path) == []
+        assert _temporaries(tmp_path) == running
+        out, _ = child.communicate("go\n", timeout=60)
+    finally:
+        if child.poll() is None:
+            child.kill()
+            child.wait()
+    assert child.returncode == 0 and out.strip() == "placed"
+    assert (tmp_path / "big.csv").read_bytes() == b"x" * (1 << 20) + b"done"
+    no_leftovers(tmp_path, {"d.csv", "out.csv", "big.csv"})
+
+
+def test_only_our_own_leftovers_are_removed(tmp_path):
+    old = time.time() - 2 * atomic.LEGACY_STALE_SECONDS
+    legacy = tmp_path / ".out.csv.k2j4h1x9.partial"  # an earlier version's name, stale
+    fresh = tmp_path / ".out.csv.a8b7c6d5.partial"  # same pattern, written to just now
+    users = [tmp_path / ".notes.partial", tmp_path / "draft.partial", tmp_path / "x.mr-1-2.partial"]
+    for path in (legacy, fresh, *users):
+        path.write_bytes(b"data")
+    for path in (legacy, *users):
+        os.utime(path, (old, old))
+    removed = atomic.remove_stale_temporaries(tmp_path)
+    assert removed == [legacy]
+    assert fresh.exists() and all(p.exists() for p in users)

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from reviewer.core.data.loading import MISSING_MARKERS, label_strings, load_table
 from reviewer.core.errors import ExportError
 from reviewer.core.output.cleaned import export_cleaned
 from tests.core.output.builders import (
@@ -322,3 +323,36 @@ def test_random_tables_match_the_csv_module(tmp_path, rows, delimiter, line_brea
         one = io.StringIO()
         csv.writer(one, delimiter=delimiter, lineterminator=line_break).writerow(rows[i])
         assert one.getvalue().encode("utf-8") in text
+
+
+def test_a_field_read_as_missing_is_no_change(tmp_path):
+    # Every marker the loader reads as missing (pandas' default na_values, from its read_csv
+    # documentation, plus our extra spellings) must also be "missing" to the exporter: a
+    # None label there is no change, so the file comes back byte for byte.
+    markers = [m for m in MISSING_MARKERS if m != ""]
+    lines = ["label,x", *(f"{m},{i}" for i, m in enumerate(markers)), ",99", "cat,100"]
+    raw = ("\n".join(lines) + "\n").encode("utf-8")
+    path = tmp_path / "m.csv"
+    path.write_bytes(raw)
+    loaded = load_table(path)
+    labels = list(label_strings(loaded.frame["label"]))
+    assert labels[:-1] == [None] * (len(markers) + 1)  # the loader reads them all as missing
+    assert loaded.source.n_rows == len(markers) + 2
+    out = export_cleaned(
+        loaded.source, "label", labels, np.zeros(len(labels), bool), tmp_path / "o.csv"
+    )
+    assert out.read_bytes() == raw
+    # A None label where the field held a real label empties that field, and only that one.
+    labels[-1] = None
+    out = export_cleaned(
+        loaded.source, "label", labels, np.zeros(len(labels), bool), tmp_path / "o2.csv"
+    )
+    assert out.read_bytes() == raw.replace(b"\ncat,100\n", b"\n,100\n")
+
+
+def test_pandas_default_missing_markers_are_all_in_the_one_list():
+    # pandas' own default list (the one its read_csv documentation prints) is part of ours,
+    # so an upgrade that adds a spelling shows up here instead of as a silent label change.
+    from pandas._libs.parsers import STR_NA_VALUES
+
+    assert set(STR_NA_VALUES) <= set(MISSING_MARKERS)
