@@ -138,6 +138,8 @@ def metrics_png(
         ax.set_yticks(y, names)
         ax.invert_yaxis()
         ax.set_title(title, fontsize=10, loc="left")
+        if values.min() >= 0.0 and values.max() <= 1.0:
+            ax.set_xlim(0.0, 1.0)  # shares and accuracies on their whole scale
         ax.spines[["top", "right"]].set_visible(False)
     # One legend above the panels, so it never covers a bar.
     handles, labels = axes[0].get_legend_handles_labels()

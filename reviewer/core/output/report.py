@@ -164,7 +164,11 @@ def _settings_section(settings: Mapping[str, Any] | None) -> _Section | None:
     if not settings:
         return None
     section = _Section("Settings", [_Cell("setting", tag="th"), _Cell("value", tag="th")])
-    for key, value in settings.items():
+    # The known settings in a fixed order (a resolved gamma beside the one asked for), then
+    # any others as they come.
+    order = {name: i for i, name in enumerate(SETTING_NAMES)}
+    items = sorted(settings.items(), key=lambda kv: order.get(str(kv[0]), len(order)))
+    for key, value in items:
         key = str(key)
         value = plain(value)
         name = SETTING_NAMES.get(key, _column_title(key))
