@@ -24,7 +24,7 @@ import stat
 import time
 from collections.abc import Callable, Iterable
 from pathlib import Path
-from typing import BinaryIO
+from typing import Any, BinaryIO
 
 from reviewer.core.errors import ExportError
 
@@ -79,7 +79,7 @@ class _FdStream(io.RawIOBase):
     def seekable(self) -> bool:
         return True
 
-    def write(self, data) -> int:  # type: ignore[override]
+    def write(self, data: Any) -> int:  # type: ignore[override]
         if self._fd < 0:
             return len(data)  # see _ignore_after_release
         view = memoryview(data).cast("B")
@@ -88,7 +88,7 @@ class _FdStream(io.RawIOBase):
             done += os.write(self._fd, view[done:])
         return done
 
-    def readinto(self, buffer) -> int:  # type: ignore[override]
+    def readinto(self, buffer: Any) -> int:  # type: ignore[override]
         chunk = os.read(self._fd, len(buffer))
         buffer[: len(chunk)] = chunk
         return len(chunk)

@@ -70,7 +70,7 @@ def slack_histogram_figure(
     if now.size == 0:
         return None
     top = float(max(2.0, np.max(now), np.max(before) if before.size else 0.0))
-    bins = np.linspace(0.0, top, 41)
+    bins = np.linspace(0.0, top, 41).tolist()
     fig = Figure(figsize=(7.0, 3.2))
     ax = fig.add_subplot()
     positive = now[now > 0]
@@ -129,16 +129,16 @@ def metrics_png(
     height = 0.6 + sum(0.45 * len(names) + 0.6 for _, names, _ in panels)
     fig = Figure(figsize=(7.0, max(2.4, height)))
     axes = fig.subplots(len(panels), 1, squeeze=False)[:, 0]
-    for ax, (title, names, values) in zip(axes, panels, strict=True):
+    for ax, (title, names, table) in zip(axes, panels, strict=True):
         y = np.arange(len(names))
         step = 0.8 / len(columns)
         for j, (column, colour) in enumerate(zip(columns, colours, strict=True)):
             offset = (j - (len(columns) - 1) / 2) * step
-            ax.barh(y + offset, values[:, j], height=step, color=colour, label=column)
+            ax.barh(y + offset, table[:, j], height=step, color=colour, label=column)
         ax.set_yticks(y, names)
         ax.invert_yaxis()
         ax.set_title(title, fontsize=10, loc="left")
-        if values.min() >= 0.0 and values.max() <= 1.0:
+        if table.min() >= 0.0 and table.max() <= 1.0:
             ax.set_xlim(0.0, 1.0)  # shares and accuracies on their whole scale
         ax.spines[["top", "right"]].set_visible(False)
     # One legend above the panels, so it never covers a bar.

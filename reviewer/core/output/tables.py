@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 import os
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO
 
 import numpy as np
 import pandas as pd
@@ -93,13 +93,13 @@ def cleaned_parquet(
     else:
         table = table.filter(pa.array(~excluded))
 
-    def write(stream) -> None:
+    def write(stream: BinaryIO) -> None:
         pq.write_table(table, stream, compression=compression)
 
     return atomic_write(out_path, write, overwrite=overwrite, protect=(where,))
 
 
-def _parquet_compression(pfile) -> dict[str, str] | str:
+def _parquet_compression(pfile: Any) -> dict[str, str] | str:
     meta = pfile.metadata
     if meta.num_row_groups == 0:
         return "snappy"
@@ -111,7 +111,7 @@ def _parquet_compression(pfile) -> dict[str, str] | str:
     return codecs_by_col
 
 
-def _arrow_cast(value: str | None, typ, column: str, where: Path):
+def _arrow_cast(value: str | None, typ: Any, column: str, where: Path) -> Any:
     import pyarrow as pa
 
     if value is None:
@@ -181,14 +181,14 @@ def cleaned_excel(
     else:
         frame = frame.loc[~excluded]
 
-    def write(stream) -> None:
+    def write(stream: BinaryIO) -> None:
         with pd.ExcelWriter(stream, engine="openpyxl") as writer:
-            frame.to_excel(writer, sheet_name=sheet, index=False)
+            frame.to_excel(writer, sheet_name=str(sheet), index=False)
 
     return atomic_write(out_path, write, overwrite=overwrite, protect=(where,))
 
 
-def _like(value: str | None, dtype, cell: Any, column: str, where: Path) -> Any:
+def _like(value: str | None, dtype: Any, cell: Any, column: str, where: Path) -> Any:
     """The new label as the kind of value the column (or, for mixed columns, the cell) holds."""
     if value is None:
         return None
