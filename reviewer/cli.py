@@ -133,9 +133,8 @@ def _one_line(text: str) -> str:
 
 
 def _scan(args: argparse.Namespace) -> int:
-    from reviewer.core.data.loading import load_table
-    from reviewer.core.model.engine import FitSettings
-    from reviewer.core.model.scan import scan_table
+    from reviewer.core.door import scan_file
+    from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
     settings = FitSettings(
@@ -148,8 +147,7 @@ def _scan(args: argparse.Namespace) -> int:
         seed=args.seed,
         score=args.score,
     ).validate()
-    loaded = load_table(args.data)
-    outcome = scan_table(loaded, args.label, id_column=args.id_column, settings=settings)
+    outcome = scan_file(args.data, args.label, id_column=args.id_column, settings=settings)
     table = outcome.table
     if args.out:
         Path(args.out).write_text(table.to_csv(index=False), encoding="utf-8")
@@ -175,17 +173,15 @@ def _scan(args: argparse.Namespace) -> int:
 def _probe(args: argparse.Namespace) -> int:
     import json
 
-    from reviewer.core.data.loading import load_table
-    from reviewer.core.model.engine import FitSettings
-    from reviewer.core.model.probe import format_probe, probe_table
+    from reviewer.core.door import format_probe, probe_file
+    from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
     settings = FitSettings(
         kernel=args.kernel, C=args.C, folds=args.folds, seed=args.seed
     ).validate()
-    loaded = load_table(args.data)
-    result = probe_table(
-        loaded,
+    result = probe_file(
+        args.data,
         args.label,
         id_column=args.id_column,
         settings=settings,
@@ -200,7 +196,7 @@ def _probe(args: argparse.Namespace) -> int:
 
 
 def _export(args: argparse.Namespace) -> int:
-    from reviewer.core.review.session import export_session
+    from reviewer.core.door import export_session
 
     written = export_session(
         Path(args.session),

@@ -16,7 +16,7 @@ DEMO = ROOT / "demo_data"
 SCAN_COLUMNS = [
     "row_id",
     "label",
-    "suggested_label",
+    "model_label",
     "margin",
     "slack",
     "heldout_margin",

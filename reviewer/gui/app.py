@@ -8,7 +8,7 @@ from pathlib import Path
 
 from PySide6.QtWidgets import QApplication
 
-from reviewer.core.review.session import APP_NAME
+from reviewer.core.door import APP_NAME
 from reviewer.gui import resources
 from reviewer.gui.main_window import MainWindow
 

@@ -11,8 +11,8 @@ CAUTION = (
 KEYS: tuple[tuple[str, str], ...] = (
     ("Up / Down, Page Up / Page Down", "move through the list"),
     ("Shift+click, Ctrl+click, Shift+Up/Down", "select several rows (a decision applies to all)"),
-    ("K", "keep: the label is right"),
-    ("A", "accept the suggested label"),
+    ("C", "confirm: the label is right"),
+    ("M", "take the model's label"),
     ("1 ... 9", "relabel to class N (numbers shown above the list)"),
     ("R", "relabel: pick a class or type a new name"),
     ("X", "exclude the row from the fit and the cleaned file"),

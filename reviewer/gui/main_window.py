@@ -38,9 +38,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from reviewer.core import door, values
+from reviewer.core.door import ReviewSession
 from reviewer.core.errors import ReviewerError, SourceChangedError
-from reviewer.core.review import editlog
-from reviewer.core.review.session import ReviewSession
 from reviewer.gui import palette, resources
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.help_text import CAUTION, help_html
@@ -53,7 +53,7 @@ from reviewer.gui.workers import TaskRunner
 ALL = "all"
 RECENT_KEY = "recent_files"
 MAX_RECENT = 8
-FIT_KEYS = ("slack", "heldout_slack", "zone", "support", "suggested_label", "rank")
+FIT_KEYS = ("slack", "heldout_slack", "zone", "support", "model_label", "rank")
 
 
 def app_settings() -> QSettings:
@@ -142,14 +142,14 @@ class MainWindow(QMainWindow):
         bar = QHBoxLayout()
         self.zone_filter = QComboBox()
         self.zone_filter.addItem("all zones", ALL)
-        self.zone_filter.addItem("needs a look (not clear)", "attention")
+        self.zone_filter.addItem("needs a look (not clear)", door.ATTENTION)
         for z in palette.ZONES:
             self.zone_filter.addItem(z.replace("_", " "), z)
         self.class_filter = QComboBox()
         self.class_filter.addItem("all classes", ALL)
         self.state_filter = QComboBox()
         self.state_filter.addItem("all states", ALL)
-        for name in editlog.REVIEW_NAMES:
+        for name in values.REVIEW_NAMES:
             self.state_filter.addItem(name, name)
         self.id_filter = QLineEdit()
         self.id_filter.setPlaceholderText("find id…")
@@ -194,7 +194,7 @@ class MainWindow(QMainWindow):
         deck.addWidget(QLabel("Reason for the next decision:"))
         self.reason_combo = QComboBox()
         self.reason_combo.setEditable(True)
-        self.reason_combo.addItems(["", *editlog.REASONS])
+        self.reason_combo.addItems(["", *values.REASONS])
         self.reason_combo.setMinimumWidth(260)
         self.reason_combo.lineEdit().setPlaceholderText("none (choose or type)")
         deck.addWidget(self.reason_combo)
@@ -242,13 +242,15 @@ class MainWindow(QMainWindow):
         self.act_open = a("&Open…", self.choose_file, QKeySequence.StandardKey.Open, "open")
         self.act_export = a("&Export…", self.export_dialog, "Ctrl+E", "export")
         self.act_quit = a("&Quit", self.close, QKeySequence.StandardKey.Quit)
-        self.act_keep = a("&Keep", self.keep, "K", "keep", "Keep: the label is right (K)")
-        self.act_accept = a(
-            "&Accept suggestion",
-            self.accept_suggestion,
-            "A",
+        self.act_confirm = a(
+            "&Confirm", self.confirm, "C", "confirm", "Confirm: the label is right (C)"
+        )
+        self.act_take_model = a(
+            "Take &model's label",
+            self.take_model_label,
+            "M",
             None,
-            "Relabel to the suggested label (A)",
+            "Relabel to the model's label (M)",
         )
         self.act_relabel = a(
             "&Relabel…", self.relabel_pick, "R", "relabel", "Relabel to a class or a new name (R)"
@@ -290,8 +292,8 @@ class MainWindow(QMainWindow):
         m = mb.addMenu("&Decide")
         m.addActions(
             [
-                self.act_keep,
-                self.act_accept,
+                self.act_confirm,
+                self.act_take_model,
                 self.act_relabel,
                 self.act_exclude,
                 self.act_restore,
@@ -315,7 +317,7 @@ class MainWindow(QMainWindow):
         tb.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
         tb.addActions([self.act_open, self.act_export])
         tb.addSeparator()
-        tb.addActions([self.act_keep, self.act_relabel, self.act_exclude, self.act_restore])
+        tb.addActions([self.act_confirm, self.act_relabel, self.act_exclude, self.act_restore])
         tb.addSeparator()
         tb.addActions([self.act_undo, self.act_redo])
         tb.addSeparator()
@@ -360,11 +362,11 @@ class MainWindow(QMainWindow):
         assert s is not None
         n = s.n_rows
         if s.latest is None:
-            if key in ("zone", "support", "suggested_label"):
+            if key in ("zone", "support", "model_label"):
                 return np.full(n, None, dtype=object)
             return np.full(n, np.nan)
         col = s.latest.rows[key]
-        if key in ("zone", "support", "suggested_label"):
+        if key in ("zone", "support", "model_label"):
             return np.array([None if v is None else str(v) for v in col], dtype=object)
         if key == "rank":
             return col.to_numpy(dtype=np.int64)
@@ -383,8 +385,8 @@ class MainWindow(QMainWindow):
                 tooltip="1 = the row most likely mislabelled",
             ),
             ColumnSpec("id", s.roles.id or "Row", np.asarray(s.ids, dtype=object)),
-            ColumnSpec("label", "Given label", self._labels()),
-            ColumnSpec("suggested_label", "Suggested", self._fit_column("suggested_label")),
+            ColumnSpec("label", "Label", self._labels()),
+            ColumnSpec("model_label", "Model's label", self._fit_column("model_label")),
             ColumnSpec(
                 "slack",
                 "Slack",
@@ -424,7 +426,7 @@ class MainWindow(QMainWindow):
 
     def _review_names(self) -> np.ndarray:
         assert self.session is not None
-        names = np.array(editlog.REVIEW_NAMES, dtype=object)
+        names = np.array(values.REVIEW_NAMES, dtype=object)
         return names[self.session.review.astype(np.int64)]
 
     def _style_rows(self) -> None:
@@ -434,7 +436,7 @@ class MainWindow(QMainWindow):
         # One code per row: a review decision shows over the zone colour.
         codes = palette.codes_for(self._fit_column("zone"), palette.ZONES)
         review = s.review
-        for offset, code in ((3, editlog.KEPT), (4, editlog.RELABELLED), (5, editlog.EXCLUDED)):
+        for offset, code in ((3, values.CONFIRMED), (4, values.RELABELLED), (5, values.EXCLUDED)):
             codes[review == code] = offset
         styles = palette.zone_row_styles()
         states = palette.state_row_styles()
@@ -524,7 +526,7 @@ class MainWindow(QMainWindow):
         has = s is not None
         writable = has and not s.read_only
         for act in (
-            self.act_keep,
+            self.act_confirm,
             self.act_relabel,
             self.act_exclude,
             self.act_restore,
@@ -532,7 +534,7 @@ class MainWindow(QMainWindow):
             *self.act_number,
         ):
             act.setEnabled(writable)
-        self.act_accept.setEnabled(writable and s.latest is not None)
+        self.act_take_model.setEnabled(writable and s.latest is not None)
         self.act_undo.setEnabled(writable and s.can_undo)
         self.act_redo.setEnabled(writable and s.can_redo)
         self.act_export.setEnabled(has)
@@ -546,26 +548,22 @@ class MainWindow(QMainWindow):
         s = self.session
         if s is None:
             return
-        mask = np.ones(s.n_rows, dtype=bool)
         zone = self.zone_filter.currentData()
-        if zone != ALL:
-            zones = self._fit_column("zone")
-            if zone == "attention":
-                mask &= np.isin(zones, ["wrong_side", "inside_margin"])
-            else:
-                mask &= zones == zone
         cls = self.class_filter.currentData()
-        if cls not in (ALL, None):
-            mask &= self._labels() == cls
         state = self.state_filter.currentData()
-        if state != ALL:
-            mask &= s.review == editlog.REVIEW_NAMES.index(state)
-        text = self.id_filter.text().strip().lower()
-        if text:
-            mask &= np.array([text in str(v).lower() for v in s.ids], dtype=bool)
-        if self._bus_mask is not None and len(self._bus_mask) == s.n_rows:
-            mask &= self._bus_mask
-        self.model.set_filter(None if mask.all() else mask)
+        mask = door.row_mask(
+            s.n_rows,
+            zones=self._fit_column("zone") if zone != ALL else None,
+            zone=None if zone == ALL else zone,
+            labels=self._labels(),
+            label=None if cls in (ALL, None) else cls,
+            review=s.review,
+            state=None if state == ALL else state,
+            ids=s.ids,
+            id_text=self.id_filter.text(),
+            extra=self._bus_mask,
+        )
+        self.model.set_filter(mask)
         self.shown_label.setText(f"{self.model.rowCount()} of {s.n_rows} rows shown")
 
     def _on_bus_filter(self, mask: object) -> None:
@@ -619,20 +617,16 @@ class MainWindow(QMainWindow):
             self._syncing = False
 
     def _advance(self, rows: list[int]) -> None:
-        """Move the cursor to the next unreviewed row after the decided ones, in view order."""
+        """Move the cursor to the next open row after the decided ones, in view order."""
         s = self.session
         if s is None or self.model.rowCount() == 0:
             return
         views = [self.model.view_row(r) for r in rows]
         views = [v for v in views if v is not None]
         start = (max(views) + 1) if views else 0
-        order = self.model.view_order()
-        unreviewed = s.review[order] == editlog.UNREVIEWED
-        after = np.flatnonzero(unreviewed[start:])
-        if after.size:
-            self._select_view_row(start + int(after[0]))
-        elif start < len(order):
-            self._select_view_row(start)
+        target = door.next_open_position(s.review[self.model.view_order()], start)
+        if target is not None:
+            self._select_view_row(target)
 
     def _focus_find(self) -> None:
         self.id_filter.setFocus()
@@ -661,8 +655,8 @@ class MainWindow(QMainWindow):
         if advance:
             self._advance(rows)
 
-    def keep(self) -> None:
-        self._decide(lambda s, rows, reason: s.keep(rows, reason=reason))
+    def confirm(self) -> None:
+        self._decide(lambda s, rows, reason: s.confirm(rows, reason=reason))
 
     def exclude(self) -> None:
         self._decide(lambda s, rows, reason: s.exclude(rows, reason=reason))
@@ -685,8 +679,8 @@ class MainWindow(QMainWindow):
             return
         self.relabel_to(classes[n - 1])
 
-    def accept_suggestion(self) -> None:
-        self._decide(lambda s, rows, reason: s.relabel_to_suggestion(rows, reason=reason))
+    def take_model_label(self) -> None:
+        self._decide(lambda s, rows, reason: s.take_model_label(rows, reason=reason))
 
     def relabel_pick(self) -> None:
         s = self.session

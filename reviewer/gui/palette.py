@@ -34,10 +34,10 @@ CLASS_COLORS: tuple[str, ...] = (BLUE, ORANGE, GREEN, PURPLE, SKY, VERMILION, IN
 ZONES: tuple[str, ...] = ("wrong_side", "inside_margin", "clear")
 ZONE_COLORS: dict[str, str] = {"wrong_side": VERMILION, "inside_margin": ORANGE, "clear": GREY}
 
-STATES: tuple[str, ...] = ("unreviewed", "kept", "relabelled", "excluded")
+STATES: tuple[str, ...] = ("open", "confirmed", "relabelled", "excluded")
 STATE_COLORS: dict[str, str] = {
-    "unreviewed": GREY,
-    "kept": GREEN,
+    "open": GREY,
+    "confirmed": GREEN,
     "relabelled": BLUE,
     "excluded": INK,
 }
@@ -127,7 +127,7 @@ def state_row_styles(strength: float = 0.22) -> dict[int, tuple[QColor | None, Q
     """
     styles: dict[int, tuple[QColor | None, QColor | None]] = {}
     for i, state in enumerate(STATES):
-        if state == "unreviewed":
+        if state == "open":
             styles[i] = (None, None)
         elif state == "excluded":
             styles[i] = (tint(GREY, 0.15), QColor(GREY))

@@ -21,16 +21,15 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core.model.engine import FitSettings
-from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
-from reviewer.core.review import plotdata
-from reviewer.core.review.editlog import REVIEW_NAMES
+from reviewer.core import door
+from reviewer.core.door import CURVE_CS
+from reviewer.core.values import REVIEW_NAMES, FitSettings
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.workers import TaskRunner
 
 # One symbol per review decision (pyqtgraph symbol codes), so decisions read without colour.
-DECISION_SYMBOLS = {"unreviewed": "o", "kept": "s", "relabelled": "t", "excluded": "x"}
+DECISION_SYMBOLS = {"open": "o", "confirmed": "s", "relabelled": "t", "excluded": "x"}
 PLAIN_SIZE = 6
 SUSPECT_SIZE = 11
 REVIEWED_SIZE = 9
@@ -61,14 +60,14 @@ class ProjectionPlot(QWidget):
         bus: ReviewBus,
         parent: QWidget | None = None,
         *,
-        limit: int = plotdata.PROJECTION_LIMIT,
+        limit: int = door.PROJECTION_LIMIT,
     ) -> None:
         super().__init__(parent)
         self.session = session
         self.bus = bus
         self.limit = limit
-        self.points: plotdata.ProjectionPoints | None = None
-        self.boundary: plotdata.Boundary | None = None
+        self.points: door.ProjectionPoints | None = None
+        self.boundary: door.Boundary | None = None
         self.selected_row: int | None = None
 
         self.plot_widget = pg.PlotWidget()
@@ -113,7 +112,7 @@ class ProjectionPlot(QWidget):
     # ---- drawing ---------------------------------------------------------------------------
     def refresh(self) -> None:
         s = self.session
-        pts = plotdata.session_projection(s, limit=self.limit)
+        pts = door.session_projection(s, limit=self.limit)
         self.points = pts
         k = len(pts.classes)
         fills = [palette.brush(palette.GREY, 160), *palette.class_brushes(k, 200)]
@@ -166,7 +165,7 @@ class ProjectionPlot(QWidget):
         note = self.boundary.note if self.boundary else ""
         self.info.setText(
             f"{drawn} Fill: given label; thick outline: wrong_side, thin: inside_margin; "
-            "symbol: ○ unreviewed, □ kept, ▽ relabelled, × excluded. " + note
+            "symbol: ○ open, □ confirmed, ▽ relabelled, × excluded. " + note
         )
         self.plot_widget.setToolTip(note)
         if self.selected_row is not None:
@@ -177,9 +176,9 @@ class ProjectionPlot(QWidget):
         model = s.latest.model if s.latest is not None else None
         coords, _ = s.projection()
         if s.latest is None:
-            self.boundary = plotdata.Boundary(note="Boundary not drawn: no fit yet.")
+            self.boundary = door.Boundary(note="Boundary not drawn: no fit yet.")
         else:
-            self.boundary = plotdata.boundary_in_projection(model, s.X, coords)
+            self.boundary = door.boundary_in_projection(model, s.X, coords)
         for level, line in self.lines.items():
             seg = self.boundary.segments.get(level)
             if seg is None or not len(seg):
@@ -257,7 +256,7 @@ class SlackHistogramPlot(QWidget):
         super().__init__(parent)
         self.session = session
         self.bus = bus
-        self.histogram: plotdata.Histogram | None = None
+        self.histogram: door.Histogram | None = None
         self.last_mask: np.ndarray | None = None
 
         self.class_combo = QComboBox()
@@ -353,9 +352,7 @@ class SlackHistogramPlot(QWidget):
 
     def _draw(self) -> None:
         slack = self.slack_values()
-        h = plotdata.slack_histogram(
-            slack, self.class_mask(), skip_zero=not self.zero_box.isChecked()
-        )
+        h = door.slack_histogram(slack, self.class_mask(), skip_zero=not self.zero_box.isChecked())
         self.histogram = h
         self.bars.setOpts(x0=h.edges[:-1], x1=h.edges[1:], height=h.counts)
         self.plot.setXRange(0.0, float(h.edges[-1]), padding=0.02)
@@ -375,7 +372,7 @@ class SlackHistogramPlot(QWidget):
 
     def filter_mask(self, threshold: float) -> np.ndarray:
         """Rows above ``threshold`` in the shown slack, within the chosen class."""
-        mask = plotdata.slack_above(self.slack_values(), threshold)
+        mask = door.slack_above(self.slack_values(), threshold)
         cls = self.class_mask()
         return mask if cls is None else mask & cls
 
@@ -402,8 +399,8 @@ class CCurvePlot(QWidget):
         self.bus = bus
         self.result: dict | None = None
         self.Cs: tuple[float, ...] = CURVE_CS  # the grid of C to sweep
-        self.series: list[plotdata.CurveSeries] = []
-        self.curves: list[tuple[plotdata.CurveSeries, str, pg.PlotDataItem]] = []
+        self.series: list[door.CurveSeries] = []
+        self.curves: list[tuple[door.CurveSeries, str, pg.PlotDataItem]] = []
         self.runner = TaskRunner(self)
         self.runner.progress.connect(self._on_progress)
         self.runner.finished.connect(self._on_finished)
@@ -468,23 +465,11 @@ class CCurvePlot(QWidget):
         if self.runner.is_running:
             return
         s = self.session
-        st = s.settings
         self.run_button.setEnabled(False)
         self.cancel_button.setEnabled(True)
         self.progress_bar.setValue(0)
         self.status.setText("Computing the C curve...")
-        self.runner.start(
-            c_curve_for_labels,
-            s.X,
-            s.labels.copy(),
-            s.excluded.copy(),
-            kernel=self.kernel_combo.currentText(),
-            Cs=tuple(self.Cs),
-            degree=int(st.degree),
-            class_weight=st.class_weight,
-            folds=int(st.folds) if st.folds else 5,
-            seed=int(st.seed),
-        )
+        self.runner.start(door.c_curve_job(s, kernel=self.kernel_combo.currentText(), Cs=self.Cs))
 
     def _on_progress(self, fraction: float, message: str) -> None:
         self.progress_bar.setValue(int(fraction * 1000))
@@ -508,9 +493,9 @@ class CCurvePlot(QWidget):
         self.status.setText("C curve cancelled; the previous curve is unchanged.")
 
     def set_result(self, result: dict) -> None:
-        """Show a finished ``c_curve_for_labels`` result."""
+        """Show a finished C curve job's result."""
         self.result = result
-        self.series = plotdata.curve_series(result["candidates"])
+        self.series = door.curve_series(result["candidates"])
         self._draw()
         note = (
             f"Cross-validated with {result['folds']} folds on {result['n_rows']:,} rows"
@@ -525,7 +510,7 @@ class CCurvePlot(QWidget):
             p.clear()
             legend.clear()
         self.chosen_lines = []
-        self.curves: list[tuple[plotdata.CurveSeries, str, pg.PlotDataItem]] = []
+        self.curves: list[tuple[door.CurveSeries, str, pg.PlotDataItem]] = []
         styles = [Qt.PenStyle.SolidLine, Qt.PenStyle.DashLine, Qt.PenStyle.DotLine]
         for gi, s in enumerate(self.series):
             style = styles[gi % len(styles)]
@@ -570,14 +555,14 @@ class CCurvePlot(QWidget):
                 plot.addItem(line)
                 self.chosen_lines.append(line)
 
-    def _on_point(self, series: plotdata.CurveSeries, points: Any) -> None:
+    def _on_point(self, series: door.CurveSeries, points: Any) -> None:
         if points is None or len(points) == 0:
             return
         x = float(points[0].pos().x())
         i = int(np.argmin(np.abs(np.log10(series.C) - x)))
         self.pick(series, i)
 
-    def pick(self, series: plotdata.CurveSeries, index: int) -> FitSettings:
+    def pick(self, series: door.CurveSeries, index: int) -> FitSettings:
         """Ask for a refit with the C (and gamma) of one point of the curve."""
         base = self.session.settings.to_dict()
         base["kernel"] = (self.result or {}).get("kernel") or self.kernel_combo.currentText()

@@ -14,7 +14,7 @@ _FALLBACK: dict[str, QStyle.StandardPixmap] = {
     "open": QStyle.StandardPixmap.SP_DialogOpenButton,
     "fit": QStyle.StandardPixmap.SP_MediaPlay,
     "refit": QStyle.StandardPixmap.SP_BrowserReload,
-    "keep": QStyle.StandardPixmap.SP_DialogApplyButton,
+    "confirm": QStyle.StandardPixmap.SP_DialogApplyButton,
     "relabel": QStyle.StandardPixmap.SP_FileDialogDetailedView,
     "exclude": QStyle.StandardPixmap.SP_DialogCancelButton,
     "restore": QStyle.StandardPixmap.SP_DialogResetButton,

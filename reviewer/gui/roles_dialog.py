@@ -20,8 +20,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core.data.roles import KINDS
-from reviewer.core.review.session import TablePreview
+from reviewer.core.door import KINDS, TablePreview
 from reviewer.gui.table_model import ArrayTableModel, ColumnSpec
 
 NO_ID = "(none: rows are matched by position)"

@@ -19,7 +19,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from reviewer.core.review.session import ReviewSession
+from reviewer.core.door import ReviewSession
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.table_model import SOURCE_ROW_ROLE, ArrayTableModel, ColumnSpec
@@ -32,7 +32,7 @@ _FIT_FIELDS = (
     ("alpha", "Alpha"),
     ("zone", "Zone"),
     ("support", "Support"),
-    ("suggested_label", "Suggested label"),
+    ("model_label", "Model's label"),
 )
 
 
@@ -74,7 +74,7 @@ class RowPanel(QWidget):
         facts.addWidget(self.title)
         form = QFormLayout()
         self.values: dict[str, QLabel] = {}
-        for key, text in (("label", "Given label"), ("review", "Review state"), *_FIT_FIELDS):
+        for key, text in (("label", "Label"), ("review", "Review state"), *_FIT_FIELDS):
             lab = QLabel("–")
             lab.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
             self.values[key] = lab
@@ -130,7 +130,7 @@ class RowPanel(QWidget):
             self.history.setPlainText("")
             return
         self.title.setText(f"Row {row}   ·   {s.roles.id or 'id'} {s.ids[row]}")
-        from reviewer.core.review.editlog import REVIEW_NAMES
+        from reviewer.core.values import REVIEW_NAMES
 
         self.values["label"].setText(_text(s.labels[row]))
         self.values["review"].setText(REVIEW_NAMES[int(s.review[row])])

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import (
 )
 
 from reviewer.core.errors import SettingsError
-from reviewer.core.model.engine import KERNELS, SCORES, FitSettings
+from reviewer.core.values import KERNELS, SCORES, FitSettings
 
 _SCORE_TEXT = {"heldout": "held-out slack", "training": "training slack"}
 

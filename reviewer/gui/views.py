@@ -34,9 +34,10 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from reviewer.core import door
+from reviewer.core.door import COMPARISON_CAUTION as CAUTION
+from reviewer.core.door import Comparison
 from reviewer.core.errors import ReviewerError
-from reviewer.core.review import plotdata
-from reviewer.core.review.compare import CAUTION, Comparison, compare_fits, score_on_reference
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.plots import CCurvePlot, ProjectionPlot, SlackHistogramPlot
@@ -87,7 +88,7 @@ class CompareView(QWidget):
         self.reference_button = QPushButton("Score on a trusted reference file...")
         self.reference_button.setToolTip(
             "A CSV, Parquet or Excel file with an id column and trusted labels; both fits' "
-            "suggested labels are scored against it, matched by id"
+            "the model's labels are scored against it, matched by id"
         )
         self.reference_label = QLabel("No reference file loaded.")
         self.reference_label.setWordWrap(True)
@@ -139,9 +140,10 @@ class CompareView(QWidget):
             self.status.setText("Fit first: the comparison needs a baseline and a latest fit.")
             self._show_reference()
             return
-        comp = compare_fits(s.baseline, s.latest)
+        comp = door.compare(s)
+        assert comp is not None  # both fits exist (checked above)
         self.comparison = comp
-        self.table = plotdata.metrics_table(comp.metrics)
+        self.table = door.metrics_table(comp.metrics)
         self.metrics.setRowCount(len(self.table))
         for i, line in enumerate(self.table.itertuples(index=False)):
             cells = [line.metric, _fmt(line.before), _fmt(line.after), _fmt(line.change, True)]
@@ -163,14 +165,14 @@ class CompareView(QWidget):
                 ColumnSpec("slack_before", "slack before", ch["slack_before"].to_numpy(float)),
                 ColumnSpec("slack_after", "slack after", ch["slack_after"].to_numpy(float)),
                 ColumnSpec(
-                    "suggested_before",
-                    "suggested before",
-                    ch["suggested_before"].to_numpy(dtype=object),
+                    "model_label_before",
+                    "model's label before",
+                    ch["model_label_before"].to_numpy(dtype=object),
                 ),
                 ColumnSpec(
-                    "suggested_after",
-                    "suggested after",
-                    ch["suggested_after"].to_numpy(dtype=object),
+                    "model_label_after",
+                    "model's label after",
+                    ch["model_label_after"].to_numpy(dtype=object),
                 ),
             ]
         )
@@ -199,10 +201,8 @@ class CompareView(QWidget):
         )
         if not path:
             return
-        from reviewer.core.data.loading import load_table
-
         try:
-            frame = load_table(path).frame
+            frame = door.read_reference(path)
         except ReviewerError as exc:
             self.reference_label.setText(str(exc))
             return
@@ -236,9 +236,7 @@ class CompareView(QWidget):
             return
         frame, id_col, label_col = self.reference
         try:
-            out = score_on_reference(
-                s.ids, s.baseline.rows, s.latest.rows, frame, id_col, label_col
-            )
+            out = door.score_reference(s, frame, id_col, label_col)
         except ReviewerError as exc:
             self.reference_label.setText(str(exc))
             return
@@ -271,7 +269,7 @@ class ViewsPanel(QTabWidget):
         bus: ReviewBus,
         parent: QWidget | None = None,
         *,
-        projection_limit: int = plotdata.PROJECTION_LIMIT,
+        projection_limit: int = door.PROJECTION_LIMIT,
     ) -> None:
         super().__init__(parent)
         self.session = session

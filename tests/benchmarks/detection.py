@@ -33,8 +33,8 @@ from sklearn.preprocessing import StandardScaler
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 RESULTS = Path(__file__).resolve().parent / "results"
 RATES = (0.05, 0.10, 0.20, 0.30)

@@ -47,7 +47,7 @@ def make_log(n_rows: int, n_events: int, seed: int) -> tuple[np.ndarray, list[Ev
             bulk = roll > 0.995
             size = int(rng.integers(20, 500)) if bulk else 1
             rows = rng.choice(n_rows, size=size, replace=False).tolist()
-            action = ("relabel", "keep", "exclude", "restore", "note")[int(rng.integers(0, 5))]
+            action = ("relabel", "confirm", "exclude", "restore", "note")[int(rng.integers(0, 5))]
             ev = state.make_edit(
                 action,
                 rows,

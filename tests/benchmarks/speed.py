@@ -42,8 +42,8 @@ def run_case(method: str, n: int) -> dict:
     from sklearn.model_selection import StratifiedKFold, cross_val_predict
     from sklearn.svm import LinearSVC
 
-    from reviewer.core.model.engine import FitSettings
     from reviewer.core.model.fitting import fit_margins
+    from reviewer.core.values import FitSettings
 
     X, y = make_data(n)
     started = time.perf_counter()

@@ -34,7 +34,7 @@ def write_table(folder: Path, n: int, seed: int = 0) -> Path:
     """Synthetic, for timing only: 20 numeric features, a two-class label, an id."""
     rng = np.random.default_rng(seed)
     X = rng.standard_normal((n, 20)).round(4)
-    y = np.where(X[:, :5].sum(axis=1) + rng.standard_normal(n) > 0, "keep", "drop")
+    y = np.where(X[:, :5].sum(axis=1) + rng.standard_normal(n) > 0, "confirm", "drop")
     frame = pd.DataFrame(X, columns=[f"f{i}" for i in range(20)])
     frame.insert(0, "item", [f"I{i:07d}" for i in range(n)])
     frame["verdict"] = y
@@ -46,8 +46,8 @@ def write_table(folder: Path, n: int, seed: int = 0) -> Path:
 def measure(n: int) -> dict:
     from PySide6.QtWidgets import QApplication
 
-    from reviewer.core.model.engine import FitSettings
     from reviewer.core.review.session import ReviewSession
+    from reviewer.core.values import FitSettings
     from reviewer.gui.app import make_app
     from reviewer.gui.main_window import MainWindow
 

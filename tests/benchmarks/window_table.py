@@ -49,7 +49,7 @@ def make_columns(n: int, seed: int = 0) -> list[ColumnSpec]:
     return [
         ColumnSpec("row_id", "Row", np.arange(n, dtype=np.int64)),
         ColumnSpec("label", "Label", labels),
-        ColumnSpec("suggested", "Suggested", labels[::-1].copy()),
+        ColumnSpec("model_label", "Model's label", labels[::-1].copy()),
         ColumnSpec("margin", "Margin", margin),
         ColumnSpec("slack", "Slack", slack),
         ColumnSpec("heldout_slack", "Held-out slack", heldout),

@@ -11,9 +11,9 @@ import pandas as pd
 import pytest
 from PySide6.QtCore import QSettings, Qt, QTimer
 
-from reviewer.core.model.engine import FitSettings
-from reviewer.core.review import editlog
+from reviewer.core import values
 from reviewer.core.review.session import ReviewSession
+from reviewer.core.values import FitSettings
 from reviewer.gui.main_window import MainWindow
 
 DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
@@ -69,10 +69,10 @@ def test_review_by_keyboard_then_refit(qtbot, tmp_path):
     qtbot.keyClick(win.table, Qt.Key.Key_Down)
     second = win.model.source_row(1)
     assert win.current_row() == second
-    qtbot.keyClick(win.table, Qt.Key.Key_K)
-    assert editlog.REVIEW_NAMES[s.review[second]] == "kept"
+    qtbot.keyClick(win.table, Qt.Key.Key_C)
+    assert values.REVIEW_NAMES[s.review[second]] == "confirmed"
     assert win.current_row() == win.model.source_row(2)
-    assert shown(win, "review", second) == "kept"
+    assert shown(win, "review", second) == "confirmed"
 
     # A number key relabels to that class (numbering shown above the list).
     target = win.current_row()
@@ -118,7 +118,7 @@ def test_bulk_exclude_is_one_undo_step(qtbot, tmp_path):
 
     qtbot.keyClick(win.table, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
     assert not s.excluded[rows].any()
-    assert all(shown(win, "review", r) == "unreviewed" for r in rows)
+    assert all(shown(win, "review", r) == "open" for r in rows)
     qtbot.keyClick(win.table, Qt.Key.Key_Y, Qt.KeyboardModifier.ControlModifier)
     assert s.excluded[rows].all()
 
@@ -134,26 +134,26 @@ def test_bulk_exclude_is_one_undo_step(qtbot, tmp_path):
 def test_reason_goes_with_the_next_decision_only(qtbot, tmp_path):
     win = make_window(qtbot, open_demo(tmp_path))
     s = win.session
-    win.reason_combo.setCurrentText(editlog.REASONS[0])
+    win.reason_combo.setCurrentText(values.REASONS[0])
     row = win.current_row()
-    qtbot.keyClick(win.table, Qt.Key.Key_K)
-    assert s.events()[-1].reason == editlog.REASONS[0]
+    qtbot.keyClick(win.table, Qt.Key.Key_C)
+    assert s.events()[-1].reason == values.REASONS[0]
     assert s.events()[-1].rows == (row,)
-    qtbot.keyClick(win.table, Qt.Key.Key_K)
+    qtbot.keyClick(win.table, Qt.Key.Key_C)
     assert s.events()[-1].reason == ""
     # The row panel shows the row's own history.
     win.select_row(row)
-    assert "keep" in win.row_panel.history.toPlainText()
+    assert "confirm" in win.row_panel.history.toPlainText()
 
 
-def test_accept_suggestion_and_filters(qtbot, tmp_path):
+def test_take_model_label_and_filters(qtbot, tmp_path):
     win = make_window(qtbot, open_demo(tmp_path))
     s = win.session
     row = win.current_row()
-    suggested = s.latest.rows["suggested_label"].to_numpy()[row]
-    assert suggested != s.labels[row]  # the top row sits on the wrong side
-    qtbot.keyClick(win.table, Qt.Key.Key_A)
-    assert s.labels[row] == suggested
+    model_label = s.latest.rows["model_label"].to_numpy()[row]
+    assert model_label != s.labels[row]  # the top row sits on the wrong side
+    qtbot.keyClick(win.table, Qt.Key.Key_M)
+    assert s.labels[row] == model_label
     win.zone_filter.setCurrentIndex(win.zone_filter.findData("wrong_side"))
     zones = s.latest.rows["zone"].to_numpy()
     assert all(zones[r] == "wrong_side" for r in win.model.view_order())
@@ -172,7 +172,7 @@ def test_cancelled_fit_leaves_the_previous_fit(qtbot, tmp_path):
     s = win.session
     before = s.latest
     slack_before = win.model.column_spec("slack").values.copy()
-    qtbot.keyClick(win.table, Qt.Key.Key_K)
+    qtbot.keyClick(win.table, Qt.Key.Key_C)
     win.settings_panel.folds.setValue(5)
     qtbot.keyClick(win.table, Qt.Key.Key_F5)
     assert win.runner.is_running and win.cancel_button.isVisible()
@@ -186,7 +186,7 @@ def test_cancelled_fit_leaves_the_previous_fit(qtbot, tmp_path):
 def test_reopening_resumes_the_session(qtbot, tmp_path):
     win = make_window(qtbot, open_demo(tmp_path))
     kept = win.current_row()
-    qtbot.keyClick(win.table, Qt.Key.Key_K)
+    qtbot.keyClick(win.table, Qt.Key.Key_C)
     excluded = win.current_row()
     qtbot.keyClick(win.table, Qt.Key.Key_X)
     slack = win.session.latest.rows["slack"].to_numpy().copy()
@@ -198,7 +198,7 @@ def test_reopening_resumes_the_session(qtbot, tmp_path):
     # The saved fit is shown at once: no new fit is started.
     assert not again.runner.is_running
     assert np.allclose(again.model.column_spec("slack").values, slack)
-    assert shown(again, "review", kept) == "kept"
+    assert shown(again, "review", kept) == "confirmed"
     assert shown(again, "review", excluded) == "excluded"
     assert again.session.can_undo
 

@@ -8,11 +8,11 @@ import pytest
 from PySide6.QtCore import QPointF, Qt
 from PySide6.QtTest import QTest
 
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.output.export import write_summary_html
 from reviewer.core.review import plotdata
 from reviewer.core.review.compare import compare_fits
 from reviewer.core.review.session import ReviewSession
+from reviewer.core.values import FitSettings
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.views import ViewsPanel, _fmt, render_views_png
 
@@ -26,8 +26,8 @@ def session(tmp_path_factory):
     s = ReviewSession.open(folder / "lots.csv", label="grade", id_column="lot_id")
     s.fit(FitSettings(kernel="rbf", C=10, folds=3))
     wrong = np.flatnonzero(s.latest.rows["zone"].to_numpy() == "wrong_side")
-    s.relabel_to_suggestion(wrong[:3])
-    s.keep([int(wrong[3])])
+    s.take_model_label(wrong[:3])
+    s.confirm([int(wrong[3])])
     s.exclude([int(wrong[4])])
     s.fit()
     yield s
@@ -151,7 +151,7 @@ def test_reference_scores_are_shown(panel, session) -> None:
     panel.compare.set_reference(reference, "lot_id", "truth")
     out = panel.compare.reference_scores
     assert out["matched"] == 100
-    sug = session.baseline.rows["suggested_label"].to_numpy()[:100].astype(str)
+    sug = session.baseline.rows["model_label"].to_numpy()[:100].astype(str)
     assert out["before"]["accuracy"] == pytest.approx(np.mean(sug == truth[:100]))
     assert _fmt(out["before"]["accuracy"]) in panel.compare.reference_label.text()
 

@@ -13,8 +13,8 @@ import pandas as pd
 import pytest
 
 from reviewer.core.errors import Cancelled, SessionError, SessionLockedError
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.review.session import ReviewSession
+from reviewer.core.values import FitSettings
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -24,7 +24,7 @@ HOLDER = textwrap.dedent(
     import sys
     from reviewer.core.review.session import ReviewSession
     session = ReviewSession.open(sys.argv[1], label="label", session_path=sys.argv[2])
-    session.keep([0], reason="held by the first process")
+    session.confirm([0], reason="held by the first process")
     print("ready", flush=True)
     sys.stdin.readline()
     session.close()
@@ -69,7 +69,7 @@ def test_second_writer_in_another_process_is_refused_and_a_reader_may_look(
             # The reader sees what the writer committed.
             assert reader.n_events == 1
             with pytest.raises(SessionError, match="read-only"):
-                reader.keep([1])
+                reader.confirm([1])
         holder.stdin.write("\n")
         holder.stdin.flush()
         assert holder.stdout.readline().strip() == "closed"

@@ -12,8 +12,8 @@ from reviewer.core.data.loading import label_strings
 from reviewer.core.data.roles import ColumnRoles, infer_roles
 from reviewer.core.errors import InputError, ReviewerError
 from reviewer.core.model import engine
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 LINEAR = FitSettings(kernel="linear", C=1.0, folds=3)
 

@@ -27,13 +27,13 @@ from sklearn.preprocessing import StandardScaler
 from sklearn.svm import SVC
 
 from reviewer.core.model.engine import (
-    FitSettings,
     SoftMarginClassifier,
     fit_binary,
     resolve_gamma,
     support_kinds,
 )
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 DECISION_ATOL = 1e-3
 KKT_TOL = 1e-3

@@ -19,20 +19,18 @@ from __future__ import annotations
 
 import time
 import warnings
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 from sklearn.svm import SVC
 
-from reviewer.core.errors import InputError, SettingsError
+from reviewer.core.errors import InputError
 from reviewer.core.progress import Reporter
+from reviewer.core.values import (
+    DEFAULT_C,
+)
 
-ZONES = ("wrong_side", "inside_margin", "clear")
-SUPPORTS = ("non_support", "margin_support", "bound_support")
-KERNELS = ("linear", "rbf", "poly")
-SCORES = ("heldout", "training")
-SOLVERS = ("auto", "exact", "approximate")
 # Above this many fitted rows, solver="auto" switches to the approximate large-n solvers.
 EXACT_LIMIT = 20_000
 # LIBSVM's linear solve slows sharply with n on overlapping classes (34 s for a 10,000-row
@@ -46,59 +44,9 @@ ALPHA_RTOL = 1e-6
 ZONE_TOL = 1e-3
 # Poly kernel (gamma x.z + coef0)^degree; coef0 = 1 keeps lower-order terms (common practice).
 POLY_COEF0 = 1.0
-DEFAULT_C = 1.0
 # Iteration cap handed to LIBSVM; -1 means none. A capped fit that stops early is reported
 # as not converged (BinaryFit.converged, the problem summary and a note in the fit summary).
 MAX_ITER = -1
-
-
-@dataclass
-class FitSettings:
-    """What to fit. ``kernel="auto"`` chooses kernel, C and gamma by cross-validation."""
-
-    kernel: str = "auto"
-    C: float | None = None
-    gamma: float | str = "scale"
-    degree: int = 3
-    class_weight: str | None = None
-    folds: int = 5
-    seed: int = 0
-    score: str = "heldout"
-    solver: str = "auto"
-
-    def validate(self) -> FitSettings:
-        if self.kernel not in ("auto", *KERNELS):
-            raise SettingsError(f"kernel {self.kernel!r} is not one of auto, {', '.join(KERNELS)}")
-        if self.C is not None and not (np.isfinite(self.C) and self.C > 0):
-            raise SettingsError(f"C must be a positive number, got {self.C!r}")
-        if isinstance(self.gamma, str):
-            if self.gamma != "scale":
-                raise SettingsError(
-                    f"gamma must be a positive number or 'scale', got {self.gamma!r}"
-                )
-        elif not (np.isfinite(self.gamma) and self.gamma > 0):
-            raise SettingsError(f"gamma must be a positive number or 'scale', got {self.gamma!r}")
-        if not (1 <= int(self.degree) <= 10):
-            raise SettingsError(f"degree must be between 1 and 10, got {self.degree!r}")
-        if self.class_weight not in (None, "balanced"):
-            raise SettingsError(
-                f"class weights must be none or 'balanced', got {self.class_weight!r}"
-            )
-        if self.folds != 0 and not (2 <= int(self.folds) <= 50):
-            raise SettingsError(f"folds must be 0 (off) or between 2 and 50, got {self.folds!r}")
-        if self.score not in SCORES:
-            raise SettingsError(f"score must be one of {', '.join(SCORES)}, got {self.score!r}")
-        if self.solver not in SOLVERS:
-            raise SettingsError(f"solver must be one of {', '.join(SOLVERS)}, got {self.solver!r}")
-        return self
-
-    def to_dict(self) -> dict[str, Any]:
-        return asdict(self)
-
-    @classmethod
-    def from_dict(cls, data: dict[str, Any]) -> FitSettings:
-        known = {k: data[k] for k in cls.__dataclass_fields__ if k in data}
-        return cls(**known)
 
 
 @dataclass

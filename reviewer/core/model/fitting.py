@@ -13,10 +13,6 @@ from sklearn.metrics import accuracy_score, balanced_accuracy_score
 from reviewer.core.errors import InputError
 from reviewer.core.model import engine
 from reviewer.core.model.engine import (
-    DEFAULT_C,
-    SUPPORTS,
-    ZONES,
-    FitSettings,
     SoftMarginClassifier,
     margins_from_decision,
     problem_summaries,
@@ -26,6 +22,7 @@ from reviewer.core.model.engine import (
 from reviewer.core.model.heldout import heldout_decision
 from reviewer.core.model.tuning import choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
+from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings
 
 ROW_COLUMNS = (
     "margin",
@@ -35,7 +32,7 @@ ROW_COLUMNS = (
     "alpha",
     "zone",
     "support",
-    "suggested_label",
+    "model_label",
     "score",
     "rank",
 )
@@ -206,7 +203,7 @@ def fit_margins(
             "alpha": alpha,
             "zone": zones_from_slack(slack),
             "support": support_kinds(alpha, upper),
-            "suggested_label": suggested,
+            "model_label": suggested,
             "score": score,
             "rank": rank,
         }

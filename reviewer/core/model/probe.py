@@ -18,10 +18,10 @@ from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import LoadedTable, label_strings
 from reviewer.core.data.roles import infer_roles
 from reviewer.core.errors import InputError, SettingsError
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
 from reviewer.core.model.scan import row_ids
 from reviewer.core.progress import ProgressFn, Reporter
+from reviewer.core.values import FitSettings
 
 REVIEW_SHARES = (0.05, 0.10, 0.20)
 MAX_RATE = 0.5

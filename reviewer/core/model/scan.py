@@ -12,14 +12,14 @@ from reviewer.core.data.duplicates import conflicting_duplicates
 from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import LoadedTable, label_strings
 from reviewer.core.data.roles import ColumnRoles, infer_roles
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import FitResult, fit_margins
 from reviewer.core.progress import ProgressFn, Reporter
+from reviewer.core.values import FitSettings
 
 SCAN_COLUMNS = (
     "row_id",
     "label",
-    "suggested_label",
+    "model_label",
     "margin",
     "slack",
     "heldout_margin",

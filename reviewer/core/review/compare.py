@@ -12,8 +12,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from reviewer.core.model.engine import SUPPORTS, ZONES
 from reviewer.core.model.fitting import FitResult
+from reviewer.core.values import SUPPORTS, ZONES
 
 CAUTION = (
     "Accuracy here is measured against the labels as edited, which flatters the edits; "
@@ -45,10 +45,10 @@ def compare_fits(before: FitResult, after: FitResult) -> Comparison:
         metrics[f"rows {s}"] = (sb["support_counts"].get(s), sa["support_counts"].get(s))
     if "margin_width" in sb or "margin_width" in sa:
         metrics["margin width 2/||w||"] = (sb.get("margin_width"), sa.get("margin_width"))
-    sug_b = before.rows["suggested_label"].to_numpy()
-    sug_a = after.rows["suggested_label"].to_numpy()
+    sug_b = before.rows["model_label"].to_numpy()
+    sug_a = after.rows["model_label"].to_numpy()
     changed_suggestion = int(np.sum(np.array([a != b for a, b in zip(sug_b, sug_a, strict=True)])))
-    metrics["rows whose suggested label changed"] = (0, changed_suggestion)
+    metrics["rows whose model's label changed"] = (0, changed_suggestion)
     zb = before.rows["zone"].to_numpy()
     za = after.rows["zone"].to_numpy()
     moved = np.flatnonzero((zb != za) & (zb != "") & (za != ""))
@@ -59,8 +59,8 @@ def compare_fits(before: FitResult, after: FitResult) -> Comparison:
             "zone_after": za[moved],
             "slack_before": before.rows["slack"].to_numpy()[moved],
             "slack_after": after.rows["slack"].to_numpy()[moved],
-            "suggested_before": sug_b[moved],
-            "suggested_after": sug_a[moved],
+            "model_label_before": sug_b[moved],
+            "model_label_after": sug_a[moved],
         }
     )
     return Comparison(metrics=metrics, changed_rows=changed)
@@ -74,9 +74,9 @@ def score_on_reference(
     id_col: str,
     label_col: str,
 ) -> dict[str, Any]:
-    """Score both fits' suggested labels against trusted labels, rows matched by id.
+    """Score both fits' model labels against trusted labels, rows matched by id.
 
-    Only rows present in the reference, with a trusted label and a suggestion from both fits,
+    Only rows present in the reference, with a trusted label and a model's label from both fits,
     are scored, so before and after are measured on the same rows. Returns
     {"matched", "unmatched_reference", "before": {accuracy, balanced_accuracy},
     "after": {...}}.
@@ -95,8 +95,8 @@ def score_on_reference(
     ref = reference[[id_col, label_col]].dropna()
     trusted = dict(zip(ref[id_col].astype(str), ref[label_col].astype(str), strict=True))
     ids = [str(v) for v in np.asarray(session_ids)]
-    sug_b = baseline_rows["suggested_label"].to_numpy()
-    sug_a = latest_rows["suggested_label"].to_numpy()
+    sug_b = baseline_rows["model_label"].to_numpy()
+    sug_a = latest_rows["model_label"].to_numpy()
     # A fit gives no suggestion for a row it could not score (None, or NaN once stored).
     has_both = ~pd.isna(sug_b) & ~pd.isna(sug_a)
     rows = [i for i, rid in enumerate(ids) if rid in trusted and has_both[i]]
@@ -108,7 +108,7 @@ def score_on_reference(
     for name, sug in (("before", sug_b), ("after", sug_a)):
         pred = [str(sug[i]) for i in rows]
         with warnings.catch_warnings():
-            # A suggested class the reference never uses is simply wrong on those rows.
+            # A predicted class the reference never uses is simply wrong on those rows.
             warnings.simplefilter("ignore", UserWarning)
             out[name] = {
                 "accuracy": float(accuracy_score(truth, pred)) if rows else float("nan"),

@@ -14,13 +14,14 @@ Actions and what an event's per-row `before` / `after` hold:
 Every decision replaces the row's previous decision: ``keep`` confirms the current label
 and brings an excluded row back, ``relabel`` sets a label (and brings the row back),
 ``exclude`` leaves the row out, ``restore`` brings an excluded row back and leaves it
-``relabelled`` when its label differs from the source label, else ``unreviewed`` (back in
+``relabelled`` when its label differs from the source label, else ``open`` (back in
 the queue: nobody has confirmed its label yet). ``restore`` does nothing to a row that is
 not excluded. Notes are not undo steps; ``undo`` skips over them.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
 import itertools
 from collections.abc import Iterable, Sequence
@@ -30,41 +31,28 @@ from typing import Any
 import numpy as np
 
 from reviewer.core.errors import SessionError
-
-KEEP = "keep"
-RELABEL = "relabel"
-EXCLUDE = "exclude"
-RESTORE = "restore"
-NOTE = "note"
-UNDO = "undo"
-REDO = "redo"
-EDIT_ACTIONS = (KEEP, RELABEL, EXCLUDE, RESTORE)
-"""Actions that change the state; each one is one undo step, however many rows it names."""
-ACTIONS = (*EDIT_ACTIONS, NOTE, UNDO, REDO)
-
-UNREVIEWED = 0
-KEPT = 1
-RELABELLED = 2
-EXCLUDED = 3
-REVIEW_NAMES = ("unreviewed", "kept", "relabelled", "excluded")
-"""Review state names, indexed by the int8 codes in `LabelState.review`."""
-
-REASONS = (
-    "label looks wrong",
-    "agrees with its nearest neighbours",
-    "checked against the original record",
-    "ambiguous: could be either class",
-    "duplicate of another row",
-    "bad or missing measurements",
-    "does not belong in this data set",
-    "model is wrong here",
+from reviewer.core.values import (
+    ACTIONS,
+    CONFIRM,
+    CONFIRMED,
+    EDIT_ACTIONS,
+    EXCLUDE,
+    EXCLUDED,
+    LEGACY_NAMES,
+    NOTE,
+    OPEN,
+    REDO,
+    RELABEL,
+    RELABELLED,
+    RESTORE,
+    REVIEW_NAMES,
+    UNDO,
 )
-"""Ready-made reasons the window offers; any free text is accepted as well."""
 
 # Per-entry action codes for the vectorised replay; keep/relabel/exclude equal their state.
-_STATE_OF = {KEEP: KEPT, RELABEL: RELABELLED, EXCLUDE: EXCLUDED}
+_STATE_OF = {CONFIRM: CONFIRMED, RELABEL: RELABELLED, EXCLUDE: EXCLUDED}
 _RESTORE_CODE = 4
-_ACTION_CODE = {KEEP: KEPT, RELABEL: RELABELLED, EXCLUDE: EXCLUDED, RESTORE: _RESTORE_CODE}
+_ACTION_CODE = {CONFIRM: CONFIRMED, RELABEL: RELABELLED, EXCLUDE: EXCLUDED, RESTORE: _RESTORE_CODE}
 
 
 def utc_now() -> str:
@@ -211,7 +199,7 @@ class LabelState:
 
     @property
     def review(self) -> np.ndarray:
-        """Review state code per row (int8): UNREVIEWED, KEPT, RELABELLED or EXCLUDED."""
+        """Review state code per row (int8): OPEN, CONFIRMED, RELABELLED or EXCLUDED."""
         return _readonly(self._review)
 
     @property
@@ -410,7 +398,7 @@ class LabelState:
     def _next_review(self, action: str, idx: np.ndarray, old: np.ndarray) -> np.ndarray:
         if action != RESTORE:
             return np.full(idx.size, _STATE_OF[action], dtype=np.int8)
-        back = np.where(self._labels[idx] != self._source[idx], RELABELLED, UNREVIEWED)
+        back = np.where(self._labels[idx] != self._source[idx], RELABELLED, OPEN)
         return np.where(old == EXCLUDED, back, old).astype(np.int8)
 
     def _do(self, ev: Event) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -460,7 +448,7 @@ def _final_state(source: np.ndarray, edits: Sequence[Event]) -> tuple[np.ndarray
     restored = restored[review[restored] == EXCLUDED]
     if restored.size:
         changed = labels[restored] != source[restored]
-        review[restored] = np.where(changed, RELABELLED, UNREVIEWED)
+        review[restored] = np.where(changed, RELABELLED, OPEN)
     return labels, review
 
 
@@ -486,4 +474,32 @@ def _per_row(values: Iterable[Any] | None, n: int, name: str, conv: Any) -> tupl
     out = tuple(conv(v) for v in values)
     if len(out) != n:
         raise SessionError(f"{name} has {len(out)} values for {n} rows")
+    return out
+
+
+_STATE_ACTIONS = (CONFIRM, EXCLUDE, RESTORE)
+
+
+def read_legacy_names(events: Sequence[Event]) -> list[Event]:
+    """Events as this version names them: 0.1 files said ``kept`` and ``unreviewed``.
+
+    (Their ``keep`` action is read as ``confirm`` where the file is read, before an Event
+    exists.)
+
+    Only review-state values are renamed (in confirm, exclude and restore events and in the
+    undo or redo of one); labels are left alone, whatever text they hold.
+    """
+    kind: dict[int, str] = {}
+    out: list[Event] = []
+    for ev in events:
+        what = kind.get(ev.target, "") if ev.target is not None else ev.action
+        kind[ev.seq] = what
+        if what in _STATE_ACTIONS:
+            before = tuple(LEGACY_NAMES.get(v, v) if isinstance(v, str) else v for v in ev.before)
+            after = tuple(LEGACY_NAMES.get(v, v) if isinstance(v, str) else v for v in ev.after)
+        else:
+            before, after = ev.before, ev.after
+        if (before, after) != (ev.before, ev.after):
+            ev = dataclasses.replace(ev, before=before, after=after)
+        out.append(ev)
     return out

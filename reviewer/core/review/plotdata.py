@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from reviewer.core.review.editlog import REVIEW_NAMES, UNREVIEWED
+from reviewer.core.values import OPEN, REVIEW_NAMES
 
 SUSPECT_ZONES = ("wrong_side", "inside_margin")
 # pyqtgraph redraws ~100k points in ~0.15 s and 1M in ~1.5 s; 150k keeps a refresh short.
@@ -55,7 +55,7 @@ class ProjectionPoints:
     class_code: np.ndarray  # index into ``classes``; -1 for an unlabelled row
     classes: list[str]
     zone: np.ndarray  # object array: wrong_side / inside_margin / clear / ""
-    review: np.ndarray  # review code per point (editlog.REVIEW_NAMES)
+    review: np.ndarray  # review code per point (values.REVIEW_NAMES)
     suspect: np.ndarray  # bool: wrong_side or inside_margin
     variance: np.ndarray  # share of variance of each axis
     n_total: int  # rows in the table (points drawn may be fewer)
@@ -81,7 +81,7 @@ def projection_points(
     zones = np.full(n, "", dtype=object) if zones is None else np.asarray(zones, dtype=object)
     review = np.asarray(review)
     suspect = np.isin(zones, SUSPECT_ZONES)
-    reviewed = review != UNREVIEWED
+    reviewed = review != OPEN
     rows = downsample_rows(suspect | reviewed, limit, seed)
     # Draw order: plain rows first, then reviewed, then suspects, so the marks stay visible.
     weight = suspect[rows].astype(np.int8) * 2 + reviewed[rows].astype(np.int8)

@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from reviewer import __version__
+from reviewer.core import values
 from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import LoadedTable, label_strings, load_table, sha256_of
 from reviewer.core.data.roles import (
@@ -31,11 +32,9 @@ from reviewer.core.data.roles import (
     infer_roles,
 )
 from reviewer.core.errors import InputError, SessionError, SourceChangedError
-from reviewer.core.model.engine import FitSettings
-from reviewer.core.model.fitting import ROW_COLUMNS, FitResult, fit_margins
+from reviewer.core.model.fitting import FitResult, fit_margins
 from reviewer.core.model.scan import row_ids
 from reviewer.core.progress import ProgressFn, Reporter
-from reviewer.core.review import editlog
 from reviewer.core.review.context import (
     ClassNorms,
     class_norms,
@@ -45,6 +44,7 @@ from reviewer.core.review.context import (
 )
 from reviewer.core.review.editlog import Event, LabelState
 from reviewer.core.review.sessionfile import SessionFile
+from reviewer.core.values import ROW_COLUMNS, FitSettings
 
 SESSION_SUFFIX = ".review.sqlite"
 APP_NAME = "margin-reviewer"
@@ -333,7 +333,7 @@ class ReviewSession:
 
     @property
     def review(self) -> np.ndarray:
-        """int8 review codes per row, names in editlog.REVIEW_NAMES."""
+        """int8 review codes per row, names in values.REVIEW_NAMES."""
         return self._state.review[: self.n_rows]
 
     @property
@@ -375,14 +375,14 @@ class ReviewSession:
             self._by_row.setdefault(r, []).append(len(self._events) - 1)
 
     def review_counts(self) -> dict[str, int]:
-        codes = np.bincount(self.review.astype(np.int64), minlength=len(editlog.REVIEW_NAMES))
-        return {name: int(codes[i]) for i, name in enumerate(editlog.REVIEW_NAMES)}
+        codes = np.bincount(self.review.astype(np.int64), minlength=len(values.REVIEW_NAMES))
+        return {name: int(codes[i]) for i, name in enumerate(values.REVIEW_NAMES)}
 
     def status(self) -> dict[str, Any]:
         out: dict[str, Any] = {
             "rows": self.n_rows,
             "events": self.n_events,
-            "reviewed": int(np.sum(self.review != editlog.UNREVIEWED)),
+            "reviewed": int(np.sum(self.review != values.OPEN)),
             "session_file": str(self.session_path),
             "saved": True,  # every acknowledged edit is committed before the call returns
             "read_only": self.read_only,
@@ -393,8 +393,8 @@ class ReviewSession:
         return out
 
     # ---- edits -------------------------------------------------------------------------------
-    def keep(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
-        return self._edit(editlog.KEEP, rows, reason=reason, note=note)
+    def confirm(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
+        return self._edit(values.CONFIRM, rows, reason=reason, note=note)
 
     def relabel(
         self, rows: Iterable[int], label: str, *, reason: str = "", note: str = ""
@@ -402,25 +402,25 @@ class ReviewSession:
         label = str(label).strip()
         if not label:
             raise SessionError("a new label cannot be empty")
-        return self._edit(editlog.RELABEL, rows, label=label, reason=reason, note=note)
+        return self._edit(values.RELABEL, rows, label=label, reason=reason, note=note)
 
     def exclude(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
-        return self._edit(editlog.EXCLUDE, rows, reason=reason, note=note)
+        return self._edit(values.EXCLUDE, rows, reason=reason, note=note)
 
     def restore(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
-        return self._edit(editlog.RESTORE, rows, reason=reason, note=note)
+        return self._edit(values.RESTORE, rows, reason=reason, note=note)
 
     def add_note(self, rows: Iterable[int], text: str) -> Event:
-        return self._edit(editlog.NOTE, rows, note=text)
+        return self._edit(values.NOTE, rows, note=text)
 
-    def relabel_to_suggestion(
+    def take_model_label(
         self, rows: Iterable[int], *, reason: str = "", note: str = ""
     ) -> list[Event]:
-        """Relabel each row to the latest fit's suggested label, one step per distinct label."""
+        """Relabel each row to the latest fit's model label, one step per distinct label."""
         if self.latest is None:
-            raise SessionError("no fit yet: fit first to get suggested labels")
+            raise SessionError("no fit yet: fit first to get the model's labels")
         rows = [int(r) for r in rows]
-        suggested = self.latest.rows["suggested_label"].to_numpy()
+        suggested = self.latest.rows["model_label"].to_numpy()
         groups: dict[str, list[int]] = {}
         for r in rows:
             s = suggested[r]
@@ -459,7 +459,7 @@ class ReviewSession:
     ) -> Event:
         self._writable()
         rows = sorted({int(r) for r in rows})
-        if not rows and action != editlog.NOTE:
+        if not rows and action != values.NOTE:
             raise SessionError(f"{action}: no rows selected")
         bad = [r for r in rows if not 0 <= r < self.n_rows]
         if bad:
@@ -565,7 +565,7 @@ class ReviewSession:
             ):
                 continue
             rows = record.rows.copy()
-            for col in ("zone", "support", "suggested_label"):
+            for col in ("zone", "support", "model_label"):
                 rows[col] = rows[col].astype(object).where(rows[col].notna(), None)
             result = FitResult(rows=rows, settings=record.settings, summary=record.summary)
             if slot == "baseline":

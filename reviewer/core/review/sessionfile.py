@@ -31,7 +31,8 @@ from pathlib import Path
 from typing import Any
 
 from reviewer.core.errors import SessionError, SessionLockedError
-from reviewer.core.review.editlog import Event, utc_now
+from reviewer.core.review.editlog import Event, read_legacy_names, utc_now
+from reviewer.core.values import LEGACY_NAMES
 
 APPLICATION_ID = 0x4D524731  # "MRG1": marks a SQLite file as one of ours
 SLOTS = ("baseline", "latest")
@@ -458,7 +459,7 @@ class SessionFile:
                         seq=seq,
                         time=time,
                         reviewer=reviewer,
-                        action=action,
+                        action=LEGACY_NAMES.get(action, action),
                         rows=tuple(r),
                         row_ids=tuple(ids),
                         before=tuple(before),
@@ -472,7 +473,7 @@ class SessionFile:
                 )
             except (ValueError, TypeError) as exc:
                 raise SessionError(f"event {seq} in {self.path} cannot be read: {exc}") from exc
-        return out
+        return read_legacy_names(out)
 
     def last_seq(self) -> int:
         """Seq of the newest event, 0 when the log is empty."""
@@ -530,7 +531,8 @@ class SessionFile:
             last,
             json.loads(settings),
             json.loads(summary),
-            pd.read_parquet(io.BytesIO(data)),
+            # 0.1 files called the model's label "suggested_label".
+            pd.read_parquet(io.BytesIO(data)).rename(columns={"suggested_label": "model_label"}),
         )
 
     def fit_history(self) -> list[FitRecord]:

@@ -13,8 +13,8 @@ from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import label_strings, load_table
 from reviewer.core.data.roles import infer_roles
 from reviewer.core.errors import InputError
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.values import FitSettings
 
 ROWS = [
     ["r1", "1.5", "crème", "yes"],
@@ -197,5 +197,5 @@ def test_unlabelled_rows_are_kept_and_left_out_of_the_fit(tmp_path: Path) -> Non
     assert rows.loc[[3, 17, 40], "margin"].isna().all()
     assert rows.loc[[3, 17, 40], "alpha"].isna().all()
     assert (rows.loc[[3, 17, 40], "rank"] == 0).all()
-    assert rows.loc[[3, 17, 40], "suggested_label"].notna().all()
+    assert rows.loc[[3, 17, 40], "model_label"].notna().all()
     assert np.isfinite(rows["margin"].drop(index=[3, 17, 40])).all()

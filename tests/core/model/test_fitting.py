@@ -7,9 +7,9 @@ import pytest
 from sklearn.svm import SVC
 
 from reviewer.core.errors import InputError, SettingsError
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.fitting import fit_margins, ranks_from_score
 from reviewer.core.model.heldout import effective_folds
+from reviewer.core.values import FitSettings
 
 
 def _blobs(n: int = 90, k: int = 3, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:

@@ -12,8 +12,8 @@ import pytest
 from reviewer.cli import main
 from reviewer.core.data.loading import LoadedTable
 from reviewer.core.errors import ReviewerError, SettingsError
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.model.probe import CAUTION, plant_flips, probe_labels, probe_table
+from reviewer.core.values import FitSettings
 
 DEMO = Path(__file__).resolve().parents[3] / "demo_data" / "coffee_lots.csv"
 

@@ -15,18 +15,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from reviewer.core.errors import SessionError
-from reviewer.core.review.editlog import (
-    EXCLUDED,
-    KEPT,
-    REASONS,
-    RELABELLED,
-    REVIEW_NAMES,
-    UNREVIEWED,
-    Event,
-    LabelState,
-    utc_now,
-)
+from reviewer.core.review.editlog import Event, LabelState, utc_now
 from reviewer.core.review.sessionfile import SessionFile
+from reviewer.core.values import CONFIRMED, EXCLUDED, OPEN, REASONS, RELABELLED, REVIEW_NAMES
 
 ROOT = Path(__file__).resolve().parents[3]
 SOURCE = ["a", "b", None, "a", "c", "b"]
@@ -55,20 +46,20 @@ class Reference:
 
     def __init__(self, source: list) -> None:
         self.source = list(source)
-        self.snaps = [(list(source), ["unreviewed"] * len(source))]
+        self.snaps = [(list(source), ["open"] * len(source))]
         self.pos = 0
 
     def edit(self, action: str, rows: list[int], label: object = None) -> None:
         labels, review = (list(x) for x in self.snaps[self.pos])
         for r in rows:
-            if action == "keep":
-                review[r] = "kept"
+            if action == "confirm":
+                review[r] = "confirmed"
             elif action == "relabel":
                 labels[r], review[r] = label, "relabelled"
             elif action == "exclude":
                 review[r] = "excluded"
             elif action == "restore" and review[r] == "excluded":
-                review[r] = "relabelled" if labels[r] != self.source[r] else "unreviewed"
+                review[r] = "relabelled" if labels[r] != self.source[r] else "open"
         self.snaps = [*self.snaps[: self.pos + 1], (labels, review)]
         self.pos += 1
 
@@ -93,7 +84,7 @@ class Reference:
 n_rows = len(SOURCE)
 op = st.one_of(
     st.tuples(
-        st.sampled_from(["keep", "relabel", "exclude", "restore", "note"]),
+        st.sampled_from(["confirm", "relabel", "exclude", "restore", "note"]),
         st.lists(st.integers(0, n_rows - 1), min_size=1, max_size=n_rows, unique=True),
         st.sampled_from(["a", "b", "c", "brand-new class"]),
     ),
@@ -178,9 +169,9 @@ def test_new_edit_after_undo_drops_redo_but_log_keeps_everything():
     e1 = log.add(log.state.make_edit("exclude", [1], reviewer="t"))
     log.add(log.state.make_undo(reviewer="t"))
     assert log.state.redo_target() == e1.seq
-    log.add(log.state.make_edit("keep", [2], reviewer="t"))
+    log.add(log.state.make_edit("confirm", [2], reviewer="t"))
     assert not log.state.can_redo
-    assert [e.action for e in log.events] == ["exclude", "undo", "keep"]
+    assert [e.action for e in log.events] == ["exclude", "undo", "confirm"]
     assert log.state.excluded.tolist() == [False] * 6
 
 
@@ -208,18 +199,18 @@ def test_restore_leaves_relabelled_rows_relabelled_and_others_unreviewed():
     log.add(log.state.make_edit("relabel", [0], reviewer="t", label="new"))
     log.add(log.state.make_edit("exclude", [0, 1], reviewer="t"))
     ev = log.add(log.state.make_edit("restore", [0, 1, 2], reviewer="t"))
-    assert ev.before == ("excluded", "excluded", "unreviewed")
-    assert ev.after == ("relabelled", "unreviewed", "unreviewed")
-    assert log.state.review[:3].tolist() == [RELABELLED, UNREVIEWED, UNREVIEWED]
+    assert ev.before == ("excluded", "excluded", "open")
+    assert ev.after == ("relabelled", "open", "open")
+    assert log.state.review[:3].tolist() == [RELABELLED, OPEN, OPEN]
     assert log.state.labels[0] == "new"
 
 
 def test_relabel_and_keep_bring_an_excluded_row_back():
     log = fresh()
     log.add(log.state.make_edit("exclude", [0, 1], reviewer="t"))
-    log.add(log.state.make_edit("keep", [0], reviewer="t"))
+    log.add(log.state.make_edit("confirm", [0], reviewer="t"))
     log.add(log.state.make_edit("relabel", [1], reviewer="t", label="c"))
-    assert log.state.review[:2].tolist() == [KEPT, RELABELLED]
+    assert log.state.review[:2].tolist() == [CONFIRMED, RELABELLED]
     assert not log.state.excluded[:2].any()
 
 
@@ -253,10 +244,10 @@ def test_utc_now_format():
     [
         dict(action="teleport", rows=(1,), row_ids=("1",), before=(1,), after=(1,),
              slack=(None,), zone=(None,)),
-        dict(action="keep", rows=(1, 2), row_ids=("1",), before=(1, 1), after=(1, 1),
+        dict(action="confirm", rows=(1, 2), row_ids=("1",), before=(1, 1), after=(1, 1),
              slack=(None, None), zone=(None, None)),
         dict(action="undo", rows=(), target=None),
-        dict(action="keep", rows=(), target=None),
+        dict(action="confirm", rows=(), target=None),
     ],
 )  # fmt: skip
 def test_malformed_events_are_refused(bad):
@@ -266,7 +257,7 @@ def test_malformed_events_are_refused(bad):
 
 def test_out_of_order_or_wrong_target_events_are_refused():
     log = fresh()
-    e1 = log.add(log.state.make_edit("keep", [0], reviewer="t"))
+    e1 = log.add(log.state.make_edit("confirm", [0], reviewer="t"))
     with pytest.raises(SessionError, match="does not follow"):
         log.state.apply(dataclasses.replace(e1, seq=1))
     bad_undo = dataclasses.replace(log.state.make_undo(reviewer="t"), seq=2, target=7)
@@ -281,9 +272,9 @@ def test_out_of_order_or_wrong_target_events_are_refused():
 def test_rows_outside_the_table_and_duplicates_are_refused():
     state = LabelState(np.array(SOURCE, dtype=object))
     with pytest.raises(SessionError, match="row 6 is outside"):
-        state.make_edit("keep", [6], reviewer="t")
+        state.make_edit("confirm", [6], reviewer="t")
     with pytest.raises(SessionError, match="named twice"):
-        state.make_edit("keep", [1, 1], reviewer="t")
+        state.make_edit("confirm", [1, 1], reviewer="t")
     with pytest.raises(SessionError, match="needs a label"):
         state.make_edit("relabel", [1], reviewer="t")
 

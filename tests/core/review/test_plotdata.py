@@ -8,11 +8,12 @@ import pytest
 from sklearn.model_selection import StratifiedKFold, cross_val_score
 from sklearn.svm import SVC
 
-from reviewer.core.model.engine import FitSettings, SoftMarginClassifier
+from reviewer.core.model.engine import SoftMarginClassifier
 from reviewer.core.model.fitting import fit_margins
 from reviewer.core.model.tuning import c_curve_for_labels
 from reviewer.core.review import plotdata
 from reviewer.core.review.compare import compare_fits, score_on_reference
+from reviewer.core.values import FitSettings
 
 
 def test_downsampling_keeps_every_suspect_and_reviewed_row_and_caps_the_count() -> None:
@@ -171,8 +172,8 @@ def test_compare_counts_and_metrics_table_match_a_recount() -> None:
 
 def test_score_on_reference_against_a_hand_count() -> None:
     ids = np.array(["r1", "r2", "r3", "r4", "r5", "r6"], dtype=object)
-    before = pd.DataFrame({"suggested_label": ["a", "a", "b", "b", None, "a"]})
-    after = pd.DataFrame({"suggested_label": ["a", "b", "b", "a", "a", "a"]})
+    before = pd.DataFrame({"model_label": ["a", "a", "b", "b", None, "a"]})
+    after = pd.DataFrame({"model_label": ["a", "b", "b", "a", "a", "a"]})
     reference = pd.DataFrame(
         {"id": ["r1", "r2", "r3", "r4", "r5", "zz"], "truth": ["a", "b", "b", "b", "a", "a"]}
     )

@@ -13,8 +13,8 @@ import pandas as pd
 import pytest
 
 from reviewer.core.errors import SessionError, SessionLockedError, SourceChangedError
-from reviewer.core.model.engine import FitSettings
 from reviewer.core.review.session import ReviewSession
+from reviewer.core.values import FitSettings
 
 ROOT = Path(__file__).resolve().parents[3]
 DEMO = ROOT / "demo_data" / "coffee_lots.csv"
@@ -39,7 +39,7 @@ def test_edits_fit_and_reopen_resume_where_the_reviewer_left_off(data: Path) -> 
         fit = s.fit(QUICK)
         worst = fit.rows.sort_values("rank").index[:4].tolist()
         s.relabel([worst[0]], "exchange", reason="label looks wrong")
-        s.keep([worst[1]])
+        s.confirm([worst[1]])
         s.exclude(worst[2:4])
         labels, excluded, review = s.labels.copy(), s.excluded.copy(), s.review.copy()
         assert not s.fit_is_current  # edits after the fit make it stale
@@ -70,7 +70,7 @@ def test_an_edit_records_the_rows_slack_and_zone_at_that_moment(data: Path) -> N
     with open_session(data) as s:
         fit = s.fit(QUICK)
         row = int(fit.rows["rank"].idxmin())
-        event = s.keep([row], reason="checked against the original record")
+        event = s.confirm([row], reason="checked against the original record")
         assert event.slack[0] == pytest.approx(fit.rows.at[row, "slack"])
         assert event.zone[0] == fit.rows.at[row, "zone"]
         assert event.row_ids == (str(s.ids[row]),)
@@ -92,11 +92,11 @@ def test_changed_source_is_refused_with_both_ways_on(data: Path) -> None:
     with open_session(data, read_only=True) as look:
         assert look.read_only
         with pytest.raises(SessionError, match="read-only"):
-            look.keep([1])
+            look.confirm([1])
     with open_session(data, reattach=True) as back:
         row = int(np.flatnonzero(back.ids == first_id)[0])
         assert back.labels[row] == "exchange"
-        back.keep([row])  # writable again after re-attaching
+        back.confirm([row])  # writable again after re-attaching
     with open_session(data) as normal:  # the new fingerprint is recorded
         assert normal.labels[row] == "exchange"
 

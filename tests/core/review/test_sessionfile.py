@@ -37,7 +37,7 @@ def session(tmp_path: Path) -> Path:
     path = tmp_path / "review.mrs"
     state = LabelState(np.array(["a", "b", "a", "b"], dtype=object))
     with SessionFile.create(path, META) as sf:
-        for action, rows in (("relabel", [0]), ("exclude", [1, 2]), ("keep", [3])):
+        for action, rows in (("relabel", [0]), ("exclude", [1, 2]), ("confirm", [3])):
             state.apply(sf.append_event(state.make_edit(action, rows, reviewer="Dana", label="b")))
         sf.save_fit("baseline", {"C": 1.0}, {"errors": 3}, pd.DataFrame({"slack": [0.0, 1.5]}))
         sf.save_fit("latest", {"C": 2.0}, {"errors": 1}, pd.DataFrame({"slack": [0.2, 0.4]}))
@@ -60,8 +60,8 @@ def test_events_get_consecutive_seqs_and_come_back_equal(session):
     with SessionFile.open(session) as sf:
         events = sf.events()
         assert [e.seq for e in events] == [1, 2, 3]
-        assert [e.action for e in events] == ["relabel", "exclude", "keep"]
-        assert events[1].rows == (1, 2) and events[1].before == ("unreviewed", "unreviewed")
+        assert [e.action for e in events] == ["relabel", "exclude", "confirm"]
+        assert events[1].rows == (1, 2) and events[1].before == ("open", "open")
         state = LabelState.replay(np.array(["a", "b", "a", "b"], dtype=object), events)
         added = sf.append_event(state.make_undo(reviewer="Dana"))
         assert (added.seq, added.target) == (4, 3)
@@ -95,7 +95,7 @@ def test_second_writer_in_same_process_is_refused_and_reader_allowed(session):
             SessionFile.open(session)
         assert str(session) in str(err.value) and "elsewhere" in str(err.value)
         with SessionFile.open(session, read_only=True) as reader:
-            writer.append_event(LabelState(["a"] * 4).make_edit("keep", [0], reviewer="x"))
+            writer.append_event(LabelState(["a"] * 4).make_edit("confirm", [0], reviewer="x"))
             assert reader.last_seq() == 4  # a reader sees commits made after it opened
     with SessionFile.open(session) as again:  # released on close
         assert not again.read_only
@@ -242,7 +242,7 @@ def test_read_only_location_opens_read_only_with_a_message(session, monkeypatch)
             assert len(sf.events()) == 3
             assert sf.load_fit("latest").settings == {"C": 2.0}
             with pytest.raises(SessionError, match="read-only"):
-                sf.append_event(LabelState(["a"]).make_edit("keep", [0], reviewer="x"))
+                sf.append_event(LabelState(["a"]).make_edit("confirm", [0], reviewer="x"))
     finally:
         os.chmod(folder, 0o755)
         os.chmod(session, 0o644)
@@ -262,7 +262,7 @@ def test_saved_event_cannot_be_appended_twice_and_numpy_values_are_stored(sessio
         with pytest.raises(SessionError, match="already in the log"):
             sf.append_event(first)
         ev = LabelState(np.array([1, 2], dtype=object)).make_edit(
-            "keep", [np.int64(1)], reviewer="x", slack=[np.float32(0.5)]
+            "confirm", [np.int64(1)], reviewer="x", slack=[np.float32(0.5)]
         )
         saved = sf.append_event(ev)
         assert sf.events(after_seq=3) == [saved] and saved.slack == (0.5,)
@@ -285,7 +285,7 @@ def test_fit_worker_thread_may_write_while_window_thread_appends(session):
         t.start()
         state = LabelState(["a"] * 4)
         for _ in range(5):
-            sf.append_event(state.make_edit("keep", [0], reviewer="x"))
+            sf.append_event(state.make_edit("confirm", [0], reviewer="x"))
         t.join()
         assert not errors
         assert sf.last_seq() == 8 and sf.load_fit("latest").settings == {"i": 4}

@@ -1,0 +1,163 @@
+"""The door into core: everything the window and the command line may use.
+
+The window and the command line import this module, ``reviewer.core.values`` and
+``reviewer.core.errors``, and nothing else from core (an import-linter contract checks it).
+"""
+
+from __future__ import annotations
+
+import functools
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from reviewer.core.data.loading import load_table
+from reviewer.core.data.roles import KINDS
+from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
+from reviewer.core.model.scan import ScanOutcome, scan_table
+from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
+from reviewer.core.review.compare import CAUTION as COMPARISON_CAUTION
+from reviewer.core.review.compare import Comparison, compare_fits, score_on_reference
+from reviewer.core.review.plotdata import (
+    PROJECTION_LIMIT,
+    Boundary,
+    CurveSeries,
+    Histogram,
+    ProjectionPoints,
+    boundary_in_projection,
+    curve_series,
+    metrics_table,
+    session_projection,
+    slack_above,
+    slack_histogram,
+)
+from reviewer.core.review.queue import ATTENTION, NEEDS_A_LOOK, next_open_position, row_mask
+from reviewer.core.review.session import (
+    APP_NAME,
+    FitJob,
+    ReviewSession,
+    TablePreview,
+    default_session_path,
+    export_session,
+)
+from reviewer.core.values import FitSettings
+
+__all__ = [
+    "APP_NAME",
+    "ATTENTION",
+    "COMPARISON_CAUTION",
+    "CURVE_CS",
+    "KINDS",
+    "NEEDS_A_LOOK",
+    "PROJECTION_LIMIT",
+    "Boundary",
+    "Comparison",
+    "CurveSeries",
+    "FitJob",
+    "Histogram",
+    "ProbeResult",
+    "ProjectionPoints",
+    "ReviewSession",
+    "ScanOutcome",
+    "TablePreview",
+    "boundary_in_projection",
+    "c_curve_job",
+    "compare",
+    "curve_series",
+    "default_session_path",
+    "export_session",
+    "format_probe",
+    "metrics_table",
+    "next_open_position",
+    "probe_file",
+    "read_reference",
+    "row_mask",
+    "scan_file",
+    "score_reference",
+    "session_projection",
+    "slack_above",
+    "slack_histogram",
+]
+
+
+def scan_file(
+    data: str | Path,
+    label: str,
+    *,
+    id_column: str | None = None,
+    settings: FitSettings | None = None,
+    progress: Callable[[float, str], None] | None = None,
+) -> ScanOutcome:
+    """Load a table and rank its rows: the ``scan`` command's work."""
+    loaded = load_table(data, progress=progress)
+    return scan_table(loaded, label, id_column=id_column, settings=settings or FitSettings())
+
+
+def probe_file(
+    data: str | Path,
+    label: str,
+    *,
+    id_column: str | None = None,
+    settings: FitSettings | None = None,
+    rate: float = 0.05,
+    seed: int = 0,
+) -> ProbeResult:
+    """Load a table, plant known flips in a copy and measure how many the ranking finds."""
+    loaded = load_table(data)
+    return probe_table(
+        loaded,
+        label,
+        id_column=id_column,
+        settings=settings or FitSettings(),
+        rate=rate,
+        seed=seed,
+    )
+
+
+def compare(session: ReviewSession) -> Comparison | None:
+    """Before against after for the session's baseline and latest fits (None before both)."""
+    if session.baseline is None or session.latest is None:
+        return None
+    return compare_fits(session.baseline, session.latest)
+
+
+def read_reference(path: str | Path) -> pd.DataFrame:
+    """A trusted reference table, read like any data file."""
+    return load_table(path).frame
+
+
+def score_reference(
+    session: ReviewSession, frame: pd.DataFrame, id_column: str, label_column: str
+) -> dict[str, Any] | None:
+    """Both fits' model labels scored against trusted labels, rows matched by id."""
+    if session.baseline is None or session.latest is None:
+        return None
+    return score_on_reference(
+        session.ids, session.baseline.rows, session.latest.rows, frame, id_column, label_column
+    )
+
+
+def c_curve_job(
+    session: ReviewSession, *, kernel: str, Cs: Sequence[float] = CURVE_CS
+) -> Callable[..., dict[str, Any]]:
+    """The C curve over the session's current labels and exclusions, as a job for a worker.
+
+    The job takes ``progress`` and ``cancel`` keyword arguments; the labels are copied now,
+    so edits made while it runs do not reach it.
+    """
+    st = session.settings
+    return functools.partial(
+        c_curve_for_labels,
+        session.X,
+        np.array(session.labels, dtype=object, copy=True),
+        np.array(session.excluded, copy=True),
+        kernel=kernel,
+        Cs=tuple(float(c) for c in Cs),
+        degree=int(st.degree),
+        class_weight=st.class_weight,
+        folds=int(st.folds) if st.folds else 5,
+        seed=int(st.seed),
+    )

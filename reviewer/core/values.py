@@ -1,0 +1,150 @@
+"""The value types and names the window and the command line share with core.
+
+Settings, per-row result columns, zone and support codes, edit actions and review states.
+Codes are what files carry; `display_name` gives the one on-screen name for each code.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+from typing import Any
+
+import numpy as np
+
+from reviewer.core.errors import SettingsError
+
+# ---- per-row results ---------------------------------------------------------------------------
+ZONES = ("wrong_side", "inside_margin", "clear")
+SUPPORTS = ("non_support", "margin_support", "bound_support")
+ROW_COLUMNS = (
+    "margin",
+    "slack",
+    "heldout_margin",
+    "heldout_slack",
+    "alpha",
+    "zone",
+    "support",
+    "model_label",
+    "score",
+    "rank",
+)
+"""Columns of a fit's per-row table, one row per table row, in table order."""
+
+# ---- settings ----------------------------------------------------------------------------------
+KERNELS = ("linear", "rbf", "poly")
+SCORES = ("heldout", "training")
+SOLVERS = ("auto", "exact", "approximate")
+DEFAULT_C = 1.0
+
+
+@dataclass
+class FitSettings:
+    """What to fit. ``kernel="auto"`` chooses kernel, C and gamma by cross-validation.
+
+    A fit's resolved settings are a FitSettings too: kernel and C filled in, and
+    ``gamma_value`` the number that ``gamma="scale"`` came to.
+    """
+
+    kernel: str = "auto"
+    C: float | None = None
+    gamma: float | str = "scale"
+    degree: int = 3
+    class_weight: str | None = None
+    folds: int = 5
+    seed: int = 0
+    score: str = "heldout"
+    solver: str = "auto"
+    gamma_value: float | None = None
+
+    def validate(self) -> FitSettings:
+        if self.kernel not in ("auto", *KERNELS):
+            raise SettingsError(f"kernel {self.kernel!r} is not one of auto, {', '.join(KERNELS)}")
+        if self.C is not None and not (np.isfinite(self.C) and self.C > 0):
+            raise SettingsError(f"C must be a positive number, got {self.C!r}")
+        if isinstance(self.gamma, str):
+            if self.gamma != "scale":
+                raise SettingsError(
+                    f"gamma must be a positive number or 'scale', got {self.gamma!r}"
+                )
+        elif not (np.isfinite(self.gamma) and self.gamma > 0):
+            raise SettingsError(f"gamma must be a positive number or 'scale', got {self.gamma!r}")
+        if not (1 <= int(self.degree) <= 10):
+            raise SettingsError(f"degree must be between 1 and 10, got {self.degree!r}")
+        if self.class_weight not in (None, "balanced"):
+            raise SettingsError(
+                f"class weights must be none or 'balanced', got {self.class_weight!r}"
+            )
+        if self.folds != 0 and not (2 <= int(self.folds) <= 50):
+            raise SettingsError(f"folds must be 0 (off) or between 2 and 50, got {self.folds!r}")
+        if self.score not in SCORES:
+            raise SettingsError(f"score must be one of {', '.join(SCORES)}, got {self.score!r}")
+        if self.solver not in SOLVERS:
+            raise SettingsError(f"solver must be one of {', '.join(SOLVERS)}, got {self.solver!r}")
+        if not isinstance(self.seed, (int, np.integer)) or not (0 <= int(self.seed) < 2**32):
+            raise SettingsError(
+                f"seed must be a whole number from 0 to 2**32 - 1, got {self.seed!r}"
+            )
+        return self
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> FitSettings:
+        known = {k: data[k] for k in cls.__dataclass_fields__ if k in data}
+        return cls(**known)
+
+    def without_resolution(self) -> FitSettings:
+        """The same settings as asked for again (no ``gamma_value``)."""
+        return FitSettings.from_dict({**self.to_dict(), "gamma_value": None})
+
+
+# ---- edits and review states ------------------------------------------------------------------
+CONFIRM = "confirm"
+RELABEL = "relabel"
+EXCLUDE = "exclude"
+RESTORE = "restore"
+NOTE = "note"
+UNDO = "undo"
+REDO = "redo"
+EDIT_ACTIONS = (CONFIRM, RELABEL, EXCLUDE, RESTORE)
+"""Actions that change the state; each one is one undo step, however many rows it names."""
+ACTIONS = (*EDIT_ACTIONS, NOTE, UNDO, REDO)
+
+OPEN = 0
+CONFIRMED = 1
+RELABELLED = 2
+EXCLUDED = 3
+REVIEW_NAMES = ("open", "confirmed", "relabelled", "excluded")
+"""Review state names, indexed by the int8 codes in `LabelState.review`."""
+
+LEGACY_NAMES = {"keep": CONFIRM, "unreviewed": "open", "kept": "confirmed"}
+"""Names that session files of version 0.1 wrote, and what they are read as now."""
+
+REASONS = (
+    "label looks wrong",
+    "agrees with its nearest neighbours",
+    "checked against the original record",
+    "ambiguous: could be either class",
+    "duplicate of another row",
+    "bad or missing measurements",
+    "does not belong in this data set",
+    "model is wrong here",
+)
+"""Ready-made reasons the window offers; any free text is accepted as well."""
+
+_DISPLAY = {
+    "wrong_side": "wrong side",
+    "inside_margin": "inside margin",
+    "clear": "clear",
+    "non_support": "not a support vector",
+    "margin_support": "on the margin",
+    "bound_support": "at the bound C",
+    "heldout": "held-out margin",
+    "training": "training margin",
+}
+
+
+def display_name(code: str) -> str:
+    """The one name a code has on screen and in the report (files keep the code)."""
+    return _DISPLAY.get(code, code)
