@@ -18,6 +18,7 @@ from typing import Any
 from reviewer.core.data.loading import sha256_of
 from reviewer.core.errors import ExportError
 from reviewer.core.output.atomic import atomic_write_bytes
+from reviewer.core.output.report import app_version
 from reviewer.core.plain import plain
 
 __all__ = [
@@ -87,13 +88,11 @@ def write_manifest(
                 "sha256": digest,
             }
         )
-    from reviewer import __version__
-
     document = {
         "kind": MANIFEST_KIND,
         "version": MANIFEST_VERSION,
         "written_at": dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds"),
-        "app_version": __version__,
+        "app_version": app_version(),
         "source": {"path": str(source_path), "sha256": source_sha256},
         "session": None if session_path is None else str(session_path),
         "event_seq": event_seq,

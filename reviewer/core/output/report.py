@@ -19,17 +19,18 @@ from typing import Any
 import numpy as np
 
 from reviewer.core.errors import ExportError
-from reviewer.core.model.engine import ZONES
 from reviewer.core.output.atomic import atomic_write_bytes
 from reviewer.core.output.figures import metrics_png, slack_histogram_png
 from reviewer.core.plain import plain
+from reviewer.core.values import SUPPORTS, ZONES
+from reviewer.core.values import display_name as code_name
 
 __all__ = [
     "CAUTION",
     "SETTING_NAMES",
     "SUPPORT_NAMES",
     "ZONE_NAMES",
-    "display_name",
+    "display_codes",
     "write_summary_html",
 ]
 
@@ -44,17 +45,20 @@ STALE = (
     "not the exported file. Refit and export again for numbers that match it."
 )
 
-#: One display name per zone code, the same everywhere on screen; files keep the codes.
-ZONE_NAMES: dict[str, str] = {
-    "wrong_side": "wrong side",
-    "inside_margin": "inside margin",
-    "clear": "clear",
-}
-SUPPORT_NAMES: dict[str, str] = {
-    "non_support": "non-support",
-    "margin_support": "margin support",
-    "bound_support": "bound support",
-}
+#: One display name per zone and support code, the same as on screen; files keep the codes.
+ZONE_NAMES: dict[str, str] = {code: code_name(code) for code in ZONES}
+SUPPORT_NAMES: dict[str, str] = {code: code_name(code) for code in SUPPORTS}
+
+
+def app_version() -> str:
+    """The installed Margin Reviewer version (the package metadata pyproject.toml sets)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("margin-reviewer")
+    except PackageNotFoundError:  # run from a source tree that was never installed
+        return "unknown"
+
 
 #: Readable names of the fit settings (FitSettings fields and what a fit resolved).
 SETTING_NAMES: dict[str, str] = {
@@ -89,7 +93,7 @@ _CODES = re.compile(r"\b(" + "|".join(map(re.escape, {**ZONE_NAMES, **SUPPORT_NA
 _ID_COLUMNS = {"row_id", "row", "id"}
 
 
-def display_name(text: str) -> str:
+def display_codes(text: str) -> str:
     """``text`` with every zone and support code replaced by its display name."""
     names = {**ZONE_NAMES, **SUPPORT_NAMES}
     return _CODES.sub(lambda m: names[m.group(1)], text)
@@ -141,7 +145,7 @@ class _Section:
 def _cell(value: Any, *, css: str = "", zone: bool = False) -> _Cell:
     text = _text(value)
     if zone:
-        text = display_name(text)
+        text = display_codes(text)
     if not css and _is_number(value):
         css = "num"
     return _Cell(text, css)
@@ -156,7 +160,7 @@ def _counts_section(title: str, head: str, counts: Mapping[str, Any] | None) -> 
         return None  # an empty table says nothing; leave it out
     section = _Section(title, [_Cell(head, tag="th"), _Cell("count", tag="th")])
     for key, count in counts.items():
-        section.rows.append([_Cell(display_name(str(key)), tag="th"), _cell(count)])
+        section.rows.append([_Cell(display_codes(str(key)), tag="th"), _cell(count)])
     return section
 
 
@@ -190,7 +194,7 @@ def _metric_rows(metrics: Mapping[str, Sequence[Any]], n: int) -> list[list[_Cel
             change = f"{delta:+.6g}" if isinstance(delta, float) else f"{delta:+d}"
         rows.append(
             [
-                _Cell(display_name(str(name)), tag="th"),
+                _Cell(display_codes(str(name)), tag="th"),
                 *(_cell(v) for v in values),
                 _Cell(change, "num"),
             ]
@@ -213,9 +217,9 @@ def _metrics_section(
         _metric_rows(metrics, len(columns)),
     )
     if draw:
-        accuracy = {display_name(k): v for k, v in metrics.items() if "accuracy" in k}
+        accuracy = {display_codes(k): v for k, v in metrics.items() if "accuracy" in k}
         zones = {
-            display_name(k): v
+            display_codes(k): v
             for k, v in metrics.items()
             if k.startswith("rows ") and any(z in k for z in ZONES)
         }
@@ -284,8 +288,7 @@ def render_summary_html(summary: Mapping[str, Any], *, where: Any = "summary") -
     """The summary page as text; see write_summary_html for the accepted keys."""
     import jinja2
 
-    from reviewer import __version__
-
+    __version__ = app_version()
     for key in ("source_path", "source_sha256"):
         if key not in summary:
             raise ExportError(f"Cannot write summary {where}: missing {key!r}")
