@@ -11,6 +11,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from reviewer.core.data.loading import SourceInfo
@@ -252,3 +253,26 @@ def test_only_our_own_leftovers_are_removed(tmp_path):
     removed = atomic.remove_stale_temporaries(tmp_path)
     assert removed == [legacy]
     assert fresh.exists() and all(p.exists() for p in users)
+
+
+def test_command_line_export_onto_an_existing_file_names_the_option(tmp_path):
+    from reviewer.core.door import ReviewSession
+
+    root = Path(__file__).resolve().parents[3]
+    data = tmp_path / "lots.csv"
+    pd.read_csv(root / "demo_data" / "coffee_lots.csv", nrows=60).to_csv(data, index=False)
+    with ReviewSession.open(data, label="grade", id_column="lot_id") as session:
+        session.exclude([0])
+        session_file = session.session_path
+    out = tmp_path / "out.csv"
+    out.write_text("yesterday")
+    proc = subprocess.run(
+        [sys.executable, "-m", "reviewer", "export", str(session_file), "--out", str(out)],
+        cwd=root,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert proc.returncode == 2
+    assert proc.stderr.startswith("error:") and "--overwrite" in proc.stderr
+    assert "overwrite=True to" not in proc.stderr and out.read_text() == "yesterday"
