@@ -8,6 +8,7 @@ autoescape; the Python side only chooses what to show and in which words.
 from __future__ import annotations
 
 import base64
+import dataclasses
 import datetime as dt
 import os
 import re
@@ -51,13 +52,10 @@ SUPPORT_NAMES: dict[str, str] = {code: code_name(code) for code in SUPPORTS}
 
 
 def app_version() -> str:
-    """The installed Margin Reviewer version (the package metadata pyproject.toml sets)."""
-    from importlib.metadata import PackageNotFoundError, version
+    """The Margin Reviewer version, from its one place (reviewer/_version.py)."""
+    from reviewer._version import __version__
 
-    try:
-        return version("margin-reviewer")
-    except PackageNotFoundError:  # run from a source tree that was never installed
-        return "unknown"
+    return __version__
 
 
 #: Readable names of the fit settings (FitSettings fields and what a fit resolved).
@@ -164,7 +162,15 @@ def _counts_section(title: str, head: str, counts: Mapping[str, Any] | None) -> 
     return section
 
 
-def _settings_section(settings: Mapping[str, Any] | None) -> _Section | None:
+def _settings_of(summary: Mapping[str, Any]) -> Mapping[str, Any]:
+    """The summary's settings as a mapping (a FitSettings dataclass is accepted too)."""
+    settings = summary.get("settings") or {}
+    if dataclasses.is_dataclass(settings) and not isinstance(settings, type):
+        return dataclasses.asdict(settings)
+    return settings
+
+
+def _settings_section(settings: Mapping[str, Any]) -> _Section | None:
     if not settings:
         return None
     section = _Section("Settings", [_Cell("setting", tag="th"), _Cell("value", tag="th")])
@@ -251,7 +257,7 @@ def _rows_section(rows: Sequence[Mapping[str, Any]] | None) -> _Section | None:
 
 
 def _slack_section(summary: Mapping[str, Any]) -> _Section | None:
-    settings = summary.get("settings") or {}
+    settings = _settings_of(summary)
     heldout = summary.get("heldout_slack")
     training = summary.get("slack")
     use_heldout = settings.get("score", "heldout") == "heldout"
@@ -325,7 +331,7 @@ def render_summary_html(summary: Mapping[str, Any], *, where: Any = "summary") -
         tables["Before and after"] = summary["metrics"]
     tables.update(summary.get("metric_tables") or {})
     sections = [
-        _settings_section(summary.get("settings")),
+        _settings_section(_settings_of(summary)),
         _counts_section("Edits by action", "action", summary.get("counts_by_action")),
         _counts_section("Edits by reason", "reason", summary.get("counts_by_reason")),
         _slack_section(summary),
@@ -372,7 +378,7 @@ def write_summary_html(
       label_column: str
       cleaned_path, audit_path: str      where the exports went
       fit_out_of_date: bool              True when edits came after the last fit
-      settings: Mapping[str, Any]        fit settings (kernel, C, gamma, folds, seed, ...)
+      settings: Mapping | FitSettings    fit settings (kernel, C, gamma, folds, seed, ...)
       counts_by_action: Mapping[str, int]
       counts_by_reason: Mapping[str, int]
       heldout_slack, slack: Sequence[float]   the current fit's per-row slacks; the one the

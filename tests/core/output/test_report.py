@@ -161,3 +161,13 @@ def test_template_ships_as_package_data():
 
     template = files("reviewer.core.output").joinpath("templates/report.html.j2")
     assert template.is_file() and "{{ title }}" in template.read_text("utf-8")
+
+
+def test_settings_may_come_as_fit_settings(tmp_path):
+    from reviewer.core.values import FitSettings
+
+    src = simple_csv(tmp_path)
+    summary = fit_summary(src, settings=FitSettings(kernel="linear", C=2.0, folds=3))
+    page = write_summary_html(summary, tmp_path / "r.html").read_text("utf-8")
+    assert '<tr><th>Penalty C</th><td class="num">2</td></tr>' in page
+    assert '<tr><th>Held-out folds</th><td class="num">3</td></tr>' in page
