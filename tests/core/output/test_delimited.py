@@ -356,3 +356,18 @@ def test_pandas_default_missing_markers_are_all_in_the_one_list():
     from pandas._libs.parsers import STR_NA_VALUES
 
     assert set(STR_NA_VALUES) <= set(MISSING_MARKERS)
+
+
+def test_formula_like_labels_are_kept_exactly_in_the_cleaned_file(tmp_path):
+    # The cleaned file is data for pipelines: unlike the audit CSV, nothing is escaped.
+    raw = b"label,x\n=1+1,1\n-2,2\nb,3\n"
+    src = delimited_source(tmp_path / "f.csv", raw, ",", "utf-8", ("label", "x"), 3)
+    out = export_cleaned(
+        src,
+        "label",
+        ["=1+1", "-2", "@SUM(A1)"],
+        np.zeros(3, bool),
+        tmp_path / "o.csv",
+        source_labels=["=1+1", "-2", "b"],
+    )
+    assert out.read_bytes() == b"label,x\n=1+1,1\n-2,2\n@SUM(A1),3\n"
