@@ -10,6 +10,7 @@ from __future__ import annotations
 import base64
 import dataclasses
 import datetime as dt
+import json
 import os
 import re
 from collections.abc import Mapping, Sequence
@@ -31,7 +32,9 @@ __all__ = [
     "SETTING_NAMES",
     "SUPPORT_NAMES",
     "ZONE_NAMES",
+    "app_version",
     "display_codes",
+    "render_summary_html",
     "write_summary_html",
 ]
 
@@ -113,8 +116,6 @@ def _text(value: Any) -> str:
     if isinstance(value, float):
         return f"{value:.6g}"
     if isinstance(value, (list, dict)):
-        import json
-
         return json.dumps(value, ensure_ascii=False)
     return str(value)
 
@@ -167,6 +168,10 @@ def _settings_of(summary: Mapping[str, Any]) -> Mapping[str, Any]:
     settings = summary.get("settings") or {}
     if dataclasses.is_dataclass(settings) and not isinstance(settings, type):
         return dataclasses.asdict(settings)
+    if not isinstance(settings, Mapping):
+        raise ExportError(
+            f"settings must be a mapping or FitSettings, not {type(settings).__name__}"
+        )
     return settings
 
 
