@@ -118,6 +118,12 @@ def cleaned_delimited(
     keep_excluded: bool,
     flag_column: str,
 ) -> bytes:
+    """The cleaned file's bytes: the source's, with changed labels replaced and rows dropped.
+
+    ``new`` holds the labels to write and ``old`` the labels as loaded (None: compare with
+    each field's own text, a field read as missing counting as None). With
+    ``keep_excluded`` every record gets a last field ``flag_column`` of true/false instead.
+    """
     where = Path(source.path)
     delim = source.delimiter
     if not delim or len(delim) != 1 or delim in '"\r\n':
