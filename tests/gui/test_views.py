@@ -128,8 +128,8 @@ def test_compare_view_shows_compare_fits_numbers(qtbot, panel, session) -> None:
         for i in range(table.rowCount())
     }
     assert len(shown) == len(comp.metrics)
-    b, a = comp.metrics["rows wrong_side"]
-    assert shown["rows wrong_side"] == [str(b), str(a), f"{a - b:+d}"]
+    b, a = comp.metrics["rows wrong side"]
+    assert shown["rows wrong side"] == [str(b), str(a), f"{a - b:+d}"]
     b, a = comp.metrics["held-out accuracy"]
     assert shown["held-out accuracy"][:2] == [f"{b:.4f}", f"{a:.4f}"]
     assert b != a  # the edits changed the fit, so the table has something to show
