@@ -61,6 +61,9 @@ def app_version() -> str:
     return __version__
 
 
+#: The before/after table's columns when the latest fit used other settings than the baseline.
+NEW_SETTINGS_COLUMNS = ("before", "after: edits alone", "edits and new settings")
+
 #: Readable names of the fit settings (FitSettings fields and what a fit resolved).
 SETTING_NAMES: dict[str, str] = {
     "kernel": "Kernel",
@@ -163,9 +166,10 @@ def _counts_section(title: str, head: str, counts: Mapping[str, Any] | None) -> 
     return section
 
 
-def _settings_of(summary: Mapping[str, Any]) -> Mapping[str, Any]:
-    """The summary's settings as a mapping (a FitSettings dataclass is accepted too)."""
-    settings = summary.get("settings") or {}
+def _as_mapping(settings: Any) -> Mapping[str, Any]:
+    """Settings as a mapping (a FitSettings dataclass is accepted too)."""
+    if not settings:
+        return {}
     if dataclasses.is_dataclass(settings) and not isinstance(settings, type):
         return dataclasses.asdict(settings)
     if not isinstance(settings, Mapping):
@@ -175,21 +179,36 @@ def _settings_of(summary: Mapping[str, Any]) -> Mapping[str, Any]:
     return settings
 
 
-def _settings_section(settings: Mapping[str, Any]) -> _Section | None:
-    if not settings:
+def _settings_of(summary: Mapping[str, Any]) -> Mapping[str, Any]:
+    return _as_mapping(summary.get("settings"))
+
+
+def _setting_cell(key: str, value: Any) -> _Cell:
+    value = plain(value)
+    shown = _SETTING_VALUES.get((key, value)) if isinstance(value, (str, type(None))) else None
+    return _Cell(shown) if shown is not None else _cell(value)
+
+
+def _settings_section(summary: Mapping[str, Any]) -> _Section | None:
+    """One column of values, or one per side when the sides were fitted differently."""
+    sides = {str(k): _as_mapping(v) for k, v in (summary.get("settings_by_side") or {}).items()}
+    if not sides:
+        settings = _settings_of(summary)
+        sides = {"value": settings} if settings else {}
+    if not sides:
         return None
-    section = _Section("Settings", [_Cell("setting", tag="th"), _Cell("value", tag="th")])
+    section = _Section(
+        "Settings", [_Cell("setting", tag="th"), *(_Cell(side, tag="th") for side in sides)]
+    )
     # The known settings in a fixed order (a resolved gamma beside the one asked for), then
     # any others as they come.
+    keys = list(dict.fromkeys(str(k) for values in sides.values() for k in values))
     order = {name: i for i, name in enumerate(SETTING_NAMES)}
-    items = sorted(settings.items(), key=lambda kv: order.get(str(kv[0]), len(order)))
-    for key, value in items:
-        key = str(key)
-        value = plain(value)
+    keys.sort(key=lambda k: order.get(k, len(order)))
+    for key in keys:
         name = SETTING_NAMES.get(key, _column_title(key))
-        shown = _SETTING_VALUES.get((key, value)) if isinstance(value, (str, type(None))) else None
-        cell = _Cell(shown) if shown is not None else _cell(value)
-        section.rows.append([_Cell(name, tag="th"), cell])
+        cells = [_setting_cell(key, values.get(key)) for values in sides.values()]
+        section.rows.append([_Cell(name, tag="th"), *cells])
     return section
 
 
@@ -199,9 +218,11 @@ def _metric_rows(metrics: Mapping[str, Sequence[Any]], n: int) -> list[list[_Cel
         values = list(values)
         if len(values) != n:
             raise ExportError(f"metric {name!r} has {len(values)} values for {n} columns")
+        # The change is after against before (the first two columns): with a third column
+        # for new settings, the edits alone stay the number the reader compares.
         change = ""
-        if _is_number(values[0]) and _is_number(values[-1]):
-            delta = plain(values[-1]) - plain(values[0])
+        if len(values) > 1 and _is_number(values[0]) and _is_number(values[1]):
+            delta = plain(values[1]) - plain(values[0])
             change = f"{delta:+.6g}" if isinstance(delta, float) else f"{delta:+d}"
         rows.append(
             [
@@ -223,7 +244,7 @@ def _metrics_section(
         [
             _Cell("metric", tag="th"),
             *(_Cell(c, tag="th") for c in columns),
-            _Cell("change", tag="th"),
+            _Cell("change (edits alone)" if len(columns) > 2 else "change", tag="th"),
         ],
         _metric_rows(metrics, len(columns)),
     )
@@ -232,11 +253,11 @@ def _metrics_section(
         zones = {
             display_codes(k): v
             for k, v in metrics.items()
-            if k.startswith("rows ") and any(z in k for z in ZONES)
+            if k.startswith("rows ") and any(z in k or ZONE_NAMES[z] in k for z in ZONES)
         }
         png = metrics_png({"Accuracy": accuracy, "Rows by zone": zones}, columns)
         if png is not None:
-            caption = f"Accuracy and rows by zone, {' against '.join(columns)}"
+            caption = f"Accuracy and rows by zone: {', '.join(columns)}"
             section.figures.append(_figure(png, caption))
     return section
 
@@ -295,6 +316,21 @@ def _images_section(images: Mapping[str, Any] | None, where: Any) -> _Section | 
     return section
 
 
+def _before_after(
+    summary: Mapping[str, Any],
+) -> tuple[list[str], Mapping[str, Sequence[Any]] | None]:
+    """Column names and rows of the before/after table, new settings as a third column."""
+    metrics = summary.get("metrics")
+    new = summary.get("metrics_new_settings")
+    if summary.get("metric_columns"):
+        return list(summary["metric_columns"]), metrics
+    if not metrics or not new:
+        return ["before", "after"], metrics
+    names = list(dict.fromkeys([*metrics, *new]))
+    merged = {k: (*(metrics.get(k) or (None, None)), new.get(k)) for k in names}
+    return [*NEW_SETTINGS_COLUMNS], merged
+
+
 def render_summary_html(summary: Mapping[str, Any], *, where: Any = "summary") -> str:
     """The summary page as text; see write_summary_html for the accepted keys."""
     import jinja2
@@ -330,13 +366,13 @@ def render_summary_html(summary: Mapping[str, Any], *, where: Any = "summary") -
     meta.append(("exported at (UTC)", _text(when), False))
     meta.append(("Margin Reviewer version", __version__, False))
 
-    columns = list(summary.get("metric_columns") or ("before", "after"))
+    columns, metrics = _before_after(summary)
     tables: dict[str, Mapping[str, Sequence[Any]]] = {}
-    if summary.get("metrics"):
-        tables["Before and after"] = summary["metrics"]
+    if metrics:
+        tables["Before and after"] = metrics
     tables.update(summary.get("metric_tables") or {})
     sections = [
-        _settings_section(_settings_of(summary)),
+        _settings_section(summary),
         _counts_section("Edits by action", "action", summary.get("counts_by_action")),
         _counts_section("Edits by reason", "reason", summary.get("counts_by_reason")),
         _slack_section(summary),
@@ -389,8 +425,12 @@ def write_summary_html(
       heldout_slack, slack: Sequence[float]   the current fit's per-row slacks; the one the
                                          ranking uses (settings["score"]) is drawn
       baseline_heldout_slack, baseline_slack: Sequence[float]   the fit before the edits
+      settings_by_side: Mapping[str, Mapping | FitSettings]   settings per side (column
+                                         name -> settings), shown side by side instead
       metrics: Mapping[str, Sequence]    one before/after table (and a bar figure)
-      metric_columns: Sequence[str]      its column names; default ("before", "after")
+      metrics_new_settings: Mapping[str, Any]   the latest fit's numbers when it used other
+                                         settings: a third column, "edits and new settings"
+      metric_columns: Sequence[str]      column names; default ("before", "after")
       metric_tables: Mapping[str, Mapping[str, Sequence]]  more titled tables, same columns
       changed_rows: Sequence[Mapping[str, Any]]            one table row each
       images: Mapping[str, bytes]        caption -> PNG bytes, embedded after the rest

@@ -171,3 +171,27 @@ def test_settings_may_come_as_fit_settings(tmp_path):
     page = write_summary_html(summary, tmp_path / "r.html").read_text("utf-8")
     assert '<tr><th>Penalty C</th><td class="num">2</td></tr>' in page
     assert '<tr><th>Held-out folds</th><td class="num">3</td></tr>' in page
+
+
+def test_new_settings_are_a_third_labelled_column_and_the_change_is_the_edits_alone(tmp_path):
+    src = simple_csv(tmp_path)
+    summary = fit_summary(
+        src,
+        metrics={"held-out accuracy": (0.8, 0.85), "rows wrong side": (40, 30)},
+        metrics_new_settings={"held-out accuracy": 0.7, "rows wrong side": 60},
+        settings_by_side={
+            "before and after": {"kernel": "rbf", "C": 1.0},
+            "new settings": {"kernel": "rbf", "C": 10.0},
+        },
+    )
+    page = write_summary_html(summary, tmp_path / "r.html").read_text("utf-8")
+    assert "<th>edits and new settings</th>" in page and "<th>after: edits alone</th>" in page
+    # after - before, not new - before: the edits alone are what the change column shows.
+    assert (
+        '<tr><th>held-out accuracy</th><td class="num">0.8</td><td class="num">0.85</td>'
+        '<td class="num">0.7</td><td class="num">+0.05</td></tr>'
+    ) in page
+    assert '<td class="num">-10</td>' in page
+    assert "<th>before and after</th><th>new settings</th>" in page
+    assert '<tr><th>Penalty C</th><td class="num">1</td><td class="num">10</td></tr>' in page
+    assert len(_images(page)) == 2  # the bar figure draws the three columns
