@@ -15,6 +15,7 @@ import pandas as pd
 from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import LoadedTable, label_strings
 from reviewer.core.data.roles import ColumnRoles, infer_roles
+from reviewer.core.errors import InputError
 
 
 @dataclass
@@ -49,6 +50,8 @@ def prepare_dataset(
     """Roles (given, or inferred from ``label``, ``id_column`` and ``overrides``), features,
     labels and ids of a loaded table."""
     if roles is None:
+        if label is None:
+            raise InputError(f"{loaded.source.path}: choose the label column")
         roles = infer_roles(loaded.frame, label, id_column, overrides)
     X, names = feature_matrix(loaded.frame, roles)
     return Dataset(

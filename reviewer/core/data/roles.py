@@ -108,11 +108,11 @@ def infer_roles(
     for col in columns:
         if col in (label, id_column):
             continue
-        kind, reason = overrides.get(col), ""
-        if kind is None:
+        chosen = overrides.get(col)
+        if chosen is None:
             kind, reason = infer_kind(frame[col])
-        elif kind == "ignore":
-            reason = "ignored by choice"
+        else:
+            kind, reason = chosen, "ignored by choice" if chosen == "ignore" else ""
         if kind == "numeric":
             roles.numeric.append(col)
         elif kind == "categorical":
