@@ -22,8 +22,33 @@ from reviewer.core.progress import ProgressFn, Reporter
 DELIMITED_SUFFIXES = {".csv", ".tsv", ".tab", ".txt", ".dat", ".psv"}
 PARQUET_SUFFIXES = {".parquet", ".pq"}
 EXCEL_SUFFIXES = {".xlsx", ".xlsm"}
-# Extra spellings of "missing" seen in exported spreadsheets and survey tools (common practice).
-MISSING_MARKERS = ["?", "null", "NULL", "Null", "NaN", "nan", "NA", "N/A", "n/a", "-", ""]
+# Every text read as a missing value: pandas' default na_values (its read_csv documentation)
+# plus spellings seen in exported spreadsheets and survey tools (common practice). Export
+# uses the same list to tell a missing label from a changed one.
+MISSING_MARKERS = [
+    "",
+    "#N/A",
+    "#N/A N/A",
+    "#NA",
+    "-1.#IND",
+    "-1.#QNAN",
+    "-NaN",
+    "-nan",
+    "1.#IND",
+    "1.#QNAN",
+    "<NA>",
+    "N/A",
+    "NA",
+    "NULL",
+    "NaN",
+    "None",
+    "n/a",
+    "nan",
+    "null",
+    "?",
+    "Null",
+    "-",
+]
 DELIMITER_CANDIDATES = [",", ";", "\t", "|"]
 CHUNK_ROWS = 250_000
 
