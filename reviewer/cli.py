@@ -5,12 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import Any
 
 from reviewer._version import __version__
 
-DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
+DEMO_DIR = Path(__file__).resolve().parent / "demo_data"
 
 
 class _Parser(argparse.ArgumentParser):
@@ -70,7 +71,21 @@ def build_parser() -> argparse.ArgumentParser:
     p_scan.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
     p_scan.add_argument("--score", choices=["heldout", "training"], default="heldout")
     p_scan.add_argument("--seed", type=int, default=0)
-    p_scan.add_argument("--out", help="output CSV (default: standard output)")
+    p_scan.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
+    p_scan.add_argument("--summary", help="also write the run's summary as JSON to this file")
+    p_scan.add_argument(
+        "--quiet", action="store_true", help="no progress bar and no summary on standard error"
+    )
+    p_scan.add_argument(
+        "--treat-as-classes",
+        action="store_true",
+        help="review a numeric label with many distinct values as classes anyway",
+    )
+    p_scan.add_argument(
+        "--out",
+        help="output file: CSV, or Parquet when it ends in .parquet (default: standard output); "
+        "an earlier output is replaced, the input never",
+    )
 
     p_probe = sub.add_parser(
         "probe", help="plant known label flips in a copy and report how many the ranking finds"
@@ -88,6 +103,13 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p_probe.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
     p_probe.add_argument("--out", help="also write the result as JSON to this file")
+    p_probe.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
+    p_probe.add_argument("--quiet", action="store_true", help="no progress bar on standard error")
+    p_probe.add_argument(
+        "--treat-as-classes",
+        action="store_true",
+        help="review a numeric label with many distinct values as classes anyway",
+    )
 
     p_export = sub.add_parser("export", help="write the cleaned table, audit log and summary")
     p_export.add_argument("session")
@@ -98,6 +120,11 @@ def build_parser() -> argparse.ArgumentParser:
         "--keep-excluded", action="store_true", help="keep excluded rows, flagged"
     )
     p_export.add_argument("--overwrite", action="store_true", help="replace existing output files")
+
+    p_verify = sub.add_parser(
+        "verify", help="check that an export's files are the ones its manifest lists"
+    )
+    p_verify.add_argument("export", help="the cleaned file, or its .manifest.json")
     return parser
 
 
@@ -113,6 +140,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             return _export(args)
         if args.command == "probe":
             return _probe(args)
+        if args.command == "verify":
+            return _verify(args)
         if args.command in ("demo", "open", None):
             return _window(args)
     except ReviewerError as exc:
@@ -133,7 +162,7 @@ def _one_line(text: str) -> str:
 
 
 def _scan(args: argparse.Namespace) -> int:
-    from reviewer.core.door import scan_file
+    from reviewer.core.door import check_scan_target, scan_file, write_scan_table
     from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
@@ -147,10 +176,23 @@ def _scan(args: argparse.Namespace) -> int:
         seed=args.seed,
         score=args.score,
     ).validate()
-    outcome = scan_file(args.data, args.label, id_column=args.id_column, settings=settings)
+    if args.out:
+        check_scan_target(args.out, protect=[Path(args.data)])
+    if args.summary:
+        check_scan_target(args.summary, protect=[Path(args.data)])
+    with _progress_bar(args) as progress:
+        outcome = scan_file(
+            args.data,
+            args.label,
+            id_column=args.id_column,
+            settings=settings,
+            treat_as_classes=args.treat_as_classes,
+            sheet=args.sheet,
+            progress=progress,
+        )
     table = outcome.table
     if args.out:
-        Path(args.out).write_text(table.to_csv(index=False), encoding="utf-8")
+        write_scan_table(table, args.out, protect=[Path(args.data)])
     else:
         table.to_csv(sys.stdout, index=False)
     s = outcome.fit.summary
@@ -161,37 +203,130 @@ def _scan(args: argparse.Namespace) -> int:
         f"rows: {s.n_rows} ({s.n_fitted} fitted, {s.n_unlabelled} unlabelled)",
         f"classes: {', '.join(f'{c} ({n})' for c, n in s.class_counts.items())}",
         f"zones: {zones}",
+        *_column_lines(outcome.roles),
         f"settings: kernel={used.kernel}, C={float(used.C or 0):g}{gamma}, folds={used.folds}, "
         f"score={used.score}",
         *[f"note: {n}" for n in s.notes],
         f"time: {time.perf_counter() - started:.2f} s",
     ]
-    sys.stderr.write("\n".join(lines) + "\n")
+    if args.summary:
+        _write_summary(args, outcome, time.perf_counter() - started)
+    if not args.quiet:
+        sys.stderr.write("\n".join(lines) + "\n")
     return 0
+
+
+def _write_summary(args: argparse.Namespace, outcome: Any, seconds: float) -> None:
+    """The run's summary as JSON, for pipelines (keys listed in the README)."""
+    import json
+
+    from reviewer.core.door import write_text
+
+    s, roles = outcome.fit.summary, outcome.roles
+    doc = {
+        "data": str(Path(args.data).resolve()),
+        "label": args.label,
+        "id": args.id_column,
+        "rows": s.n_rows,
+        "fitted": s.n_fitted,
+        "unlabelled": s.n_unlabelled,
+        "classes": s.class_counts,
+        "zones": s.zone_counts,
+        "supports": s.support_counts,
+        "settings": outcome.fit.settings.to_dict(),
+        "heldout_accuracy": s.heldout_accuracy,
+        "heldout_balanced_accuracy": s.heldout_balanced_accuracy,
+        "columns": {
+            **{c: "numeric" for c in roles.numeric},
+            **{c: "categorical" for c in roles.categorical},
+            **{c: f"ignored: {why}" for c, why in roles.ignored.items()},
+        },
+        "notes": list(s.notes),
+        "out": str(Path(args.out).resolve()) if args.out else None,
+        "seconds": round(seconds, 3),
+    }
+    write_text(args.summary, json.dumps(doc, indent=1, default=str) + "\n", protect=[args.data])
+
+
+class _progress_bar:
+    """A progress bar on standard error when it is a terminal (and not --quiet); else nothing."""
+
+    def __init__(self, args: argparse.Namespace) -> None:
+        self.enabled = sys.stderr.isatty() and not getattr(args, "quiet", False)
+        self.bar: Any = None
+
+    def __enter__(self) -> Callable[[float, str], None] | None:
+        if not self.enabled:
+            return None
+        import shutil
+
+        from tqdm import tqdm
+
+        # A terminal that reports no size (some pseudo-terminals) would hide the bar.
+        size = shutil.get_terminal_size((80, 24))
+        self.bar = tqdm(
+            total=1000,
+            file=sys.stderr,
+            leave=False,
+            ncols=max(40, size.columns or 80),
+            nrows=max(2, size.lines or 24),
+            bar_format="{desc} {bar} {percentage:3.0f}%",
+        )
+        return self.update
+
+    def update(self, fraction: float, message: str) -> None:
+        self.bar.n = int(max(0.0, min(1.0, fraction)) * 1000)
+        if message:
+            self.bar.set_description_str(message[:48], refresh=False)
+        self.bar.refresh()
+
+    def __exit__(self, *exc: object) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+def _column_lines(roles: object) -> list[str]:
+    """One summary line per column kind; ignored columns with their reasons."""
+    kinds = [
+        ("label", [getattr(roles, "label", None)]),
+        ("id", [getattr(roles, "id", None)]),
+        ("numeric", list(getattr(roles, "numeric", []))),
+        ("categorical", list(getattr(roles, "categorical", []))),
+    ]
+    lines = [f"{kind}: {', '.join(map(str, cols))}" for kind, cols in kinds if any(cols)]
+    lines += [f"ignored: {col} ({why})" for col, why in getattr(roles, "ignored", {}).items()]
+    return lines
 
 
 def _probe(args: argparse.Namespace) -> int:
     import json
 
-    from reviewer.core.door import format_probe, probe_file
+    from reviewer.core.door import check_scan_target, format_probe, probe_file, write_text
     from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
     settings = FitSettings(
         kernel=args.kernel, C=args.C, folds=args.folds, seed=args.seed
     ).validate()
-    result = probe_file(
-        args.data,
-        args.label,
-        id_column=args.id_column,
-        settings=settings,
-        rate=args.rate,
-        seed=args.seed,
-    )
+    if args.out:
+        check_scan_target(args.out, protect=[Path(args.data)])
+    with _progress_bar(args) as progress:
+        result = probe_file(
+            args.data,
+            args.label,
+            id_column=args.id_column,
+            settings=settings,
+            rate=args.rate,
+            seed=args.seed,
+            treat_as_classes=args.treat_as_classes,
+            sheet=args.sheet,
+            progress=progress,
+        )
     sys.stdout.write(format_probe(result) + "\n")
     if args.out:
-        Path(args.out).write_text(json.dumps(result.to_dict(), indent=1), encoding="utf-8")
-    sys.stderr.write(f"time: {time.perf_counter() - started:.2f} s\n")
+        write_text(args.out, json.dumps(result.to_dict(), indent=1), protect=[args.data])
+    if not args.quiet:
+        sys.stderr.write(f"time: {time.perf_counter() - started:.2f} s\n")
     return 0
 
 
@@ -208,6 +343,19 @@ def _export(args: argparse.Namespace) -> int:
     )
     for path in written:
         sys.stderr.write(f"wrote {path}\n")
+    return 0
+
+
+def _verify(args: argparse.Namespace) -> int:
+    from reviewer.core.door import manifest_path_for, verify_manifest
+
+    given = Path(args.export)
+    manifest = given if given.name.endswith(".manifest.json") else manifest_path_for(given)
+    problems = verify_manifest(manifest)
+    if problems:
+        sys.stderr.write(f"error: {manifest}: " + "; ".join(problems) + "\n")
+        return 2
+    sys.stderr.write(f"ok: every file listed in {manifest} is as the export wrote it\n")
     return 0
 
 

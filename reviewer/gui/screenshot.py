@@ -14,7 +14,7 @@ from PySide6.QtCore import QEventLoop, QTimer
 from reviewer.gui.app import demo_copy, make_app
 from reviewer.gui.main_window import MainWindow
 
-DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
+DEMO = Path(__file__).resolve().parents[1] / "demo_data" / "coffee_lots.csv"
 
 
 def _wait(app, until, seconds: float) -> bool:

@@ -13,7 +13,7 @@ from reviewer.core.review.session import ReviewSession
 from reviewer.gui.main_window import MainWindow
 from reviewer.gui.roles_dialog import NO_ID, RolesDialog
 
-DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
+DEMO = Path(__file__).resolve().parents[2] / "reviewer" / "demo_data" / "coffee_lots.csv"
 
 
 @pytest.fixture

@@ -9,6 +9,7 @@ import csv
 import hashlib
 import io
 import os
+import threading
 import zipfile
 from dataclasses import dataclass
 from pathlib import Path
@@ -22,8 +23,33 @@ from reviewer.core.progress import ProgressFn, Reporter
 DELIMITED_SUFFIXES = {".csv", ".tsv", ".tab", ".txt", ".dat", ".psv"}
 PARQUET_SUFFIXES = {".parquet", ".pq"}
 EXCEL_SUFFIXES = {".xlsx", ".xlsm"}
-# Extra spellings of "missing" seen in exported spreadsheets and survey tools (common practice).
-MISSING_MARKERS = ["?", "null", "NULL", "Null", "NaN", "nan", "NA", "N/A", "n/a", "-", ""]
+# Every text read as a missing value: pandas' default na_values (its read_csv documentation)
+# plus spellings seen in exported spreadsheets and survey tools (common practice). Export
+# uses the same list to tell a missing label from a changed one.
+MISSING_MARKERS = [
+    "",
+    "#N/A",
+    "#N/A N/A",
+    "#NA",
+    "-1.#IND",
+    "-1.#QNAN",
+    "-NaN",
+    "-nan",
+    "1.#IND",
+    "1.#QNAN",
+    "<NA>",
+    "N/A",
+    "NA",
+    "NULL",
+    "NaN",
+    "None",
+    "n/a",
+    "nan",
+    "null",
+    "?",
+    "Null",
+    "-",
+]
 DELIMITER_CANDIDATES = [",", ";", "\t", "|"]
 CHUNK_ROWS = 250_000
 
@@ -40,6 +66,48 @@ class SourceInfo:
     sheet: str | None
     n_rows: int
     columns: tuple[str, ...]
+    sheets: tuple[str, ...] = ()  # every sheet of a workbook (``sheet`` is the one read)
+    compression: str | None = None  # "gzip", "bz2", "xz" or "zip" for a compressed text file
+
+
+COMPRESSED_SUFFIXES = {".gz": "gzip", ".bz2": "bz2", ".xz": "xz", ".zip": "zip"}
+
+
+def decompress(raw: bytes, compression: str, p: Path) -> bytes:
+    """The bytes of a compressed delimited file, as pandas would read them."""
+    import bz2
+    import gzip
+    import lzma
+
+    try:
+        if compression == "gzip":
+            return gzip.decompress(raw)
+        if compression == "bz2":
+            return bz2.decompress(raw)
+        if compression == "xz":
+            return lzma.decompress(raw)
+        with zipfile.ZipFile(io.BytesIO(raw)) as archive:
+            members = [m for m in archive.infolist() if not m.is_dir()]
+            if len(members) != 1:
+                raise InputError(
+                    f"{p}: a zip archive must hold exactly one table file; it holds {len(members)}"
+                )
+            return archive.read(members[0])
+    except (OSError, EOFError, lzma.LZMAError, zipfile.BadZipFile, ValueError) as exc:
+        raise InputError(f"{p}: damaged {compression} file ({_first_line(exc)})") from exc
+
+
+def _compression_of(p: Path, raw: bytes) -> str | None:
+    by_suffix = COMPRESSED_SUFFIXES.get(p.suffix.lower())
+    if by_suffix:
+        return by_suffix
+    if raw[:2] == b"\x1f\x8b":
+        return "gzip"
+    if raw[:3] == b"BZh":
+        return "bz2"
+    if raw[:6] == b"\xfd7zXZ\x00":
+        return "xz"
+    return None
 
 
 @dataclass
@@ -61,10 +129,14 @@ def load_table(
     path: str | os.PathLike[str],
     *,
     sheet: str | None = None,
+    max_rows: int | None = None,
     progress: ProgressFn | None = None,
-    cancel=None,
+    cancel: threading.Event | None = None,
 ) -> LoadedTable:
-    """Load ``path`` as a table. Raises InputError for anything that is not a usable table."""
+    """Load ``path`` as a table. Raises InputError for anything that is not a usable table.
+
+    ``max_rows`` reads only the first rows (a preview); the fingerprint is still of the
+    whole file, and ``source.n_rows`` then counts the rows read."""
     report = Reporter(progress, cancel)
     p = Path(path).expanduser()
     if not p.exists():
@@ -79,18 +151,24 @@ def load_table(
     digest = hashlib.sha256(raw).hexdigest()
     if not raw.strip():
         raise InputError(f"{p}: the file is empty")
-    kind = _detect_kind(p, raw)
+    compression = _compression_of(p, raw)
+    if compression:
+        raw = decompress(raw, compression, p)
+        if not raw.strip():
+            raise InputError(f"{p}: the file is empty once decompressed")
+    sheets: tuple[str, ...] = ()
+    kind = "delimited" if compression else _detect_kind(p, raw)
     if kind == "parquet":
-        frame = _read_parquet(p, raw)
+        frame = _read_parquet(p, raw, max_rows)
         delimiter = encoding = used_sheet = None
     elif kind == "excel":
-        frame, used_sheet = _read_excel(p, raw, sheet)
+        frame, used_sheet, sheets = _read_excel(p, raw, sheet, max_rows)
         delimiter = encoding = None
     else:
         encoding = detect_encoding(raw, p)
         text_sample = raw[:200_000].decode(encoding, errors="replace")
         delimiter = detect_delimiter(text_sample, p)
-        frame = _read_delimited(p, raw, encoding, delimiter, report.slice(0.1, 1.0))
+        frame = _read_delimited(p, raw, encoding, delimiter, report.slice(0.1, 1.0), max_rows)
         used_sheet = None
     frame = _tidy_columns(frame, p)
     if frame.shape[1] == 0:
@@ -107,6 +185,8 @@ def load_table(
         sheet=used_sheet,
         n_rows=len(frame),
         columns=tuple(frame.columns),
+        sheets=sheets,
+        compression=compression,
     )
     return LoadedTable(frame=frame, source=info)
 
@@ -182,8 +262,15 @@ def detect_delimiter(text: str, p: Path | str = "<data>") -> str:
     return best
 
 
-def _read_delimited(p: Path, raw: bytes, encoding: str, delimiter: str, report: Reporter):
-    total_lines = max(raw.count(b"\n"), 1)
+def _read_delimited(
+    p: Path,
+    raw: bytes,
+    encoding: str,
+    delimiter: str,
+    report: Reporter,
+    max_rows: int | None = None,
+) -> pd.DataFrame:
+    total_lines = max(raw.count(b"\n"), 1) if max_rows is None else max_rows
     options = dict(
         sep=delimiter,
         encoding=encoding,
@@ -191,7 +278,8 @@ def _read_delimited(p: Path, raw: bytes, encoding: str, delimiter: str, report: 
         keep_default_na=True,
         skipinitialspace=False,
         engine="c",
-        chunksize=CHUNK_ROWS,
+        chunksize=CHUNK_ROWS if max_rows is None else max_rows,
+        nrows=max_rows,
         low_memory=False,
     )
     chunks = []
@@ -216,14 +304,25 @@ def _read_delimited(p: Path, raw: bytes, encoding: str, delimiter: str, report: 
     return frame.reset_index(drop=True)
 
 
-def _read_parquet(p: Path, raw: bytes) -> pd.DataFrame:
+def _read_parquet(p: Path, raw: bytes, max_rows: int | None = None) -> pd.DataFrame:
     try:
+        if max_rows is not None:
+            import pyarrow as pa
+            import pyarrow.parquet as pq
+
+            batches = pq.ParquetFile(io.BytesIO(raw)).iter_batches(batch_size=max_rows)
+            first = next(batches, None)
+            if first is None:
+                return pd.read_parquet(io.BytesIO(raw)).reset_index(drop=True)
+            return pa.Table.from_batches([first]).to_pandas().reset_index(drop=True)
         return pd.read_parquet(io.BytesIO(raw)).reset_index(drop=True)
     except Exception as exc:  # pyarrow raises several unrelated types for damaged files
         raise InputError(f"{p}: damaged or unreadable Parquet file ({_first_line(exc)})") from exc
 
 
-def _read_excel(p: Path, raw: bytes, sheet: str | None) -> tuple[pd.DataFrame, str]:
+def _read_excel(
+    p: Path, raw: bytes, sheet: str | None, max_rows: int | None = None
+) -> tuple[pd.DataFrame, str, tuple[str, ...]]:
     try:
         book = pd.ExcelFile(io.BytesIO(raw), engine="openpyxl")
     except (zipfile.BadZipFile, KeyError, ValueError, OSError) as exc:
@@ -237,10 +336,10 @@ def _read_excel(p: Path, raw: bytes, sheet: str | None) -> tuple[pd.DataFrame, s
         raise InputError(f"{p}: no sheet named {sheet!r}; sheets are {', '.join(names)}")
     chosen = sheet or names[0]
     try:
-        frame = pd.read_excel(book, sheet_name=chosen, na_values=MISSING_MARKERS)
+        frame = pd.read_excel(book, sheet_name=chosen, na_values=MISSING_MARKERS, nrows=max_rows)
     except Exception as exc:
         raise InputError(f"{p}: sheet {chosen!r} cannot be read ({_first_line(exc)})") from exc
-    return frame.reset_index(drop=True), chosen
+    return frame.reset_index(drop=True), chosen, tuple(names)
 
 
 def _tidy_columns(frame: pd.DataFrame, p: Path) -> pd.DataFrame:
@@ -291,3 +390,31 @@ def label_strings(values: pd.Series) -> np.ndarray:
             s = str(texts[i]).strip()
             out[i] = s if s else None
     return out
+
+
+def table_from_frame(frame: pd.DataFrame, name: str = "<DataFrame>") -> LoadedTable:
+    """A table already in memory, read like a file: columns get unique text names, the index
+    is set aside (row positions 0..n-1), and the fingerprint is a SHA-256 of the content."""
+    if not isinstance(frame, pd.DataFrame):
+        raise InputError(f"expected a pandas DataFrame or a file path, got {type(frame).__name__}")
+    if frame.shape[1] == 0:
+        raise InputError(f"{name}: the DataFrame has no columns")
+    if len(frame) == 0:
+        raise InputError(f"{name}: the DataFrame has no rows")
+    copy = _tidy_columns(frame.reset_index(drop=True).copy(), Path(name))
+    try:
+        hashed = pd.util.hash_pandas_object(copy, index=False).to_numpy()
+        digest = hashlib.sha256(hashed.tobytes()).hexdigest()
+    except TypeError:  # unhashable cells (lists): fall back to their text
+        digest = hashlib.sha256(copy.astype(str).to_csv().encode()).hexdigest()
+    info = SourceInfo(
+        path=Path(name),
+        kind="frame",
+        sha256=digest,
+        delimiter=None,
+        encoding=None,
+        sheet=None,
+        n_rows=len(copy),
+        columns=tuple(copy.columns),
+    )
+    return LoadedTable(frame=copy, source=info)

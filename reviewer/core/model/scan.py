@@ -14,7 +14,7 @@ from reviewer.core.data.loading import LoadedTable
 from reviewer.core.data.roles import ColumnRoles
 from reviewer.core.model.fitting import FitResult, fit_margins
 from reviewer.core.progress import ProgressFn, Reporter
-from reviewer.core.values import FitSettings
+from reviewer.core.values import FitSettings, formula_warning
 
 SCAN_COLUMNS = (
     "row_id",
@@ -47,15 +47,25 @@ def scan_table(
     id_column: str | None = None,
     settings: FitSettings | None = None,
     overrides: Mapping[str, str] | None = None,
+    treat_as_classes: bool = False,
     progress: ProgressFn | None = None,
     cancel=None,
 ) -> ScanOutcome:
     report = Reporter(progress, cancel)
     settings = (settings or FitSettings()).validate()
     report(0.0, "building features")
-    data = prepare_dataset(loaded, label=label, id_column=id_column, overrides=overrides)
+    data = prepare_dataset(
+        loaded,
+        label=label,
+        id_column=id_column,
+        overrides=overrides,
+        check_label=not treat_as_classes,
+    )
     roles, labels, ids = data.roles, data.labels, data.ids
     fit = fit_margins(data.X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
+    warning = formula_warning(labels, "labels in the data")
+    if warning:
+        fit.summary.notes.append(warning)
     groups = conflicting_duplicates(loaded.frame, roles, labels)
     if groups:
         shown = "; ".join(", ".join(str(ids[r]) for r in g[:4]) for g in groups[:3])

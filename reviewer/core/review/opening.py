@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import getpass
 import os
+import threading
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -67,11 +68,20 @@ class TablePreview:
     remembered: dict[str, Any] | None  # roles saved in an existing session file
 
 
+PREVIEW_SAMPLE_ROWS = 5_000
+"""The preview guesses roles from this many leading rows, not the whole file."""
+
+
 def preview_table(
-    data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None
+    data_path: str | os.PathLike[str],
+    *,
+    rows: int = 20,
+    sample: int = PREVIEW_SAMPLE_ROWS,
+    progress: ProgressFn | None = None,
 ) -> TablePreview:
-    """Load a file and guess its roles, for the column-roles dialog."""
-    loaded = load_table(data_path, progress=progress)
+    """Read the first ``sample`` rows of a file and guess its roles, for the column-roles
+    dialog (which shows the first ``rows``). The fingerprint is of the whole file."""
+    loaded = load_table(data_path, max_rows=max(rows, sample), progress=progress)
     frame = loaded.frame
     label = guess_label_column(frame)
     ident = guess_id_column(frame, label)
@@ -106,7 +116,7 @@ def open_session(
     read_only: bool = False,
     reattach: bool = False,
     progress: ProgressFn | None = None,
-    cancel=None,
+    cancel: threading.Event | None = None,
 ) -> ReviewSession:
     """Open (or start) the review of ``data_path``.
 
@@ -126,6 +136,8 @@ def open_session(
             meta = file.meta
             label_col = meta.get("label_column")
             id_col = meta.get("id_column")
+            if not label_col:
+                raise SessionError(f"session {path} names no label column; it is damaged")
             if label and label != label_col:
                 raise SessionError(
                     f"session {path} reviews label column {label_col!r}, not {label!r}; "

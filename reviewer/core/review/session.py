@@ -101,7 +101,18 @@ class ReviewSession:
         self._state = LabelState.replay(
             np.concatenate([self.source_labels, np.full(len(ghosts), None, dtype=object)]),
             [self._to_current(e) for e in events],
+            lenient=True,
         )
+        if self._state.inconsistency:
+            # A log that does not replay in full must still open: show what replays, read
+            # only, so nothing is written on top of it and the reviewer can export.
+            kept = self._state.last_seq
+            events = [e for e in events if e.seq <= kept]
+            file.demote(
+                f"the edit log is inconsistent ({self._state.inconsistency}); opened read-only "
+                f"with the {len(events)} events before it"
+            )
+            warnings.append(file.read_only_reason)
         self._events: list[Event] = []
         self._by_row: dict[int, list[int]] = {}
         for e in events:
@@ -116,13 +127,18 @@ class ReviewSession:
         self._norms: ClassNorms | None = None
         self._projection: tuple[np.ndarray, np.ndarray] | None = None
         self.warnings.extend(fits.load_saved_fits(self))
+        warning = values.formula_warning(self.source_labels, "labels in the data")
+        if warning:
+            self.warnings.append(warning)
+        self._warned_formula = warning is not None
 
     # ---- opening ---------------------------------------------------------------------------
     @staticmethod
     def preview(
         data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None
     ) -> TablePreview:
-        """Load a file and guess its roles, for the column-roles dialog."""
+        """Read the leading rows of a file and guess its roles, for the column-roles dialog
+        (safe on a worker thread)."""
         return opening.preview_table(data_path, rows=rows, progress=progress)
 
     @classmethod
@@ -172,7 +188,8 @@ class ReviewSession:
 
     # ---- listeners ---------------------------------------------------------------------------
     def subscribe(self, listener: Listener) -> None:
-        """``listener(kind, payload)`` is called after "edited", "fitted" and "settings" changes."""
+        """``listener(kind, payload)`` is called after "edited", "fitted" and "settings" changes,
+        and with "warning" (a message) when a new label would run as a spreadsheet formula."""
         self._listeners.append(listener)
 
     def _announce(self, kind: str, payload: Any = None) -> None:
@@ -275,6 +292,9 @@ class ReviewSession:
         label = str(label).strip()
         if not label:
             raise SessionError("a new label cannot be empty")
+        if not self._warned_formula and values.looks_like_formula(label):
+            self._warned_formula = True
+            self._announce("warning", values.formula_warning([label], "new labels"))
         return self._edit(values.RELABEL, rows, label=label, reason=reason, note=note)
 
     def exclude(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:

@@ -17,7 +17,7 @@ from reviewer.core.review.session import ReviewSession
 from reviewer.core.values import FitSettings
 
 ROOT = Path(__file__).resolve().parents[3]
-DEMO = ROOT / "demo_data" / "coffee_lots.csv"
+DEMO = ROOT / "reviewer" / "demo_data" / "coffee_lots.csv"
 QUICK = FitSettings(kernel="linear", C=1.0, folds=3)
 
 
@@ -117,7 +117,8 @@ def test_export_through_the_session_changes_only_labels(data: Path, tmp_path: Pa
         audit = tmp_path / "audit.csv"
         report = tmp_path / "summary.html"
         written = s.export(out, audit=audit, report=report)
-        assert [p.name for p in written] == ["clean.csv", "audit.csv", "summary.html"]
+        names = ["clean.csv", "audit.csv", "summary.html", "clean.csv.manifest.json"]
+        assert [p.name for p in written] == names
         with pytest.raises(Exception, match=r"source|data file"):
             s.export(data, overwrite=True)
     source = pd.read_csv(data, dtype=str, keep_default_na=False)
