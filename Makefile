@@ -13,7 +13,10 @@ $(STAMP): pyproject.toml
 	$(PY) -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
+# Qt's xcb plugin needs system libraries a fresh Debian lacks: install them (as root) or say
+# which packages and the command, in one line, before the window is tried.
 demo: $(STAMP)
+	$(PY) -m reviewer.gui.platform_check --install
 	$(VENV)/bin/margin-reviewer demo
 
 lint: $(STAMP)
