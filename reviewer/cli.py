@@ -8,7 +8,7 @@ import time
 from collections.abc import Sequence
 from pathlib import Path
 
-from reviewer import __version__
+from reviewer._version import __version__
 
 DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
 
@@ -155,15 +155,15 @@ def _scan(args: argparse.Namespace) -> int:
         table.to_csv(sys.stdout, index=False)
     s = outcome.fit.summary
     used = outcome.fit.settings
-    zones = ", ".join(f"{k} {v}" for k, v in s["zone_counts"].items())
-    gamma = f", gamma={used['gamma_value']:.4g}" if used["kernel"] != "linear" else ""
+    zones = ", ".join(f"{k} {v}" for k, v in s.zone_counts.items())
+    gamma = f", gamma={used.gamma_value:.4g}" if used.kernel != "linear" else ""
     lines = [
-        f"rows: {s['n_rows']} ({s['n_fitted']} fitted, {s['n_unlabelled']} unlabelled)",
-        f"classes: {', '.join(f'{c} ({n})' for c, n in s['class_counts'].items())}",
+        f"rows: {s.n_rows} ({s.n_fitted} fitted, {s.n_unlabelled} unlabelled)",
+        f"classes: {', '.join(f'{c} ({n})' for c, n in s.class_counts.items())}",
         f"zones: {zones}",
-        f"settings: kernel={used['kernel']}, C={float(used['C']):g}{gamma}, folds={used['folds']}, "
-        f"score={used['score']}",
-        *[f"note: {n}" for n in s["notes"]],
+        f"settings: kernel={used.kernel}, C={float(used.C or 0):g}{gamma}, folds={used.folds}, "
+        f"score={used.score}",
+        *[f"note: {n}" for n in s.notes],
         f"time: {time.perf_counter() - started:.2f} s",
     ]
     sys.stderr.write("\n".join(lines) + "\n")

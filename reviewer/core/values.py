@@ -6,7 +6,7 @@ Codes are what files carry; `display_name` gives the one on-screen name for each
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
@@ -148,3 +148,40 @@ _DISPLAY = {
 def display_name(code: str) -> str:
     """The one name a code has on screen and in the report (files keep the code)."""
     return _DISPLAY.get(code, code)
+
+
+# ---- a fit's summary --------------------------------------------------------------------------
+@dataclass
+class FitSummary:
+    """What one fit came to, over the rows it was fitted on (labelled, not excluded)."""
+
+    n_rows: int = 0
+    n_fitted: int = 0
+    n_unlabelled: int = 0
+    n_left_out: int = 0
+    classes: list[str] = field(default_factory=list)
+    class_counts: dict[str, int] = field(default_factory=dict)
+    zone_counts: dict[str, int] = field(default_factory=dict)
+    support_counts: dict[str, int] = field(default_factory=dict)
+    sum_slack: float = 0.0
+    problems: list[dict[str, Any]] = field(default_factory=list)
+    """One entry per binary problem: class, n_support, primal, dual, gap, converged..."""
+    primal: float = 0.0
+    dual: float = 0.0
+    notes: list[str] = field(default_factory=list)
+    training_accuracy: float | None = None
+    heldout_accuracy: float | None = None
+    heldout_balanced_accuracy: float | None = None
+    sum_heldout_slack: float | None = None
+    margin_width: float | None = None
+    candidates: list[dict[str, Any]] = field(default_factory=list)
+    """The settings `auto` tried, with their cross-validated scores."""
+    seconds: float = 0.0
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> FitSummary:
+        known = {k: data[k] for k in cls.__dataclass_fields__ if k in data}
+        return cls(**known)

@@ -454,9 +454,7 @@ class CCurvePlot(QWidget):
     # ---- background work -------------------------------------------------------------------
     def refresh(self) -> None:
         latest = self.session.latest
-        kernel = (
-            latest.settings.get("kernel") if latest is not None else self.session.settings.kernel
-        )
+        kernel = latest.settings.kernel if latest is not None else self.session.settings.kernel
         if kernel in ("linear", "rbf", "poly") and not self.runner.is_running:
             self.kernel_combo.setCurrentText(kernel)
         self._draw()
@@ -539,7 +537,7 @@ class CCurvePlot(QWidget):
                 legend = self.legends[0 if plot is self.acc_plot else 1]
                 legend.addItem(curve, name + suffix)
         latest = self.session.latest
-        chosen = latest.settings.get("C") if latest is not None else None
+        chosen = latest.settings.C if latest is not None else None
         if chosen:
             for plot in (self.acc_plot, self.count_plot):
                 line = pg.InfiniteLine(

@@ -107,16 +107,17 @@ class SettingsPanel(QWidget):
             solver=base.solver,
         ).validate()
 
-    def show_used(self, used: dict | None) -> None:
+    def show_used(self, used: FitSettings | None) -> None:
         """Show what the latest fit actually used (auto resolved)."""
-        if not used:
+        if used is None:
             self.used.setText("No fit yet.")
             return
 
         def num(v: object) -> str:
             return f"{v:.4g}" if isinstance(v, (int, float)) else str(v)
 
-        parts = [f"kernel {used.get('kernel')}", f"C {num(used.get('C'))}"]
-        if used.get("kernel") != "linear":
-            parts.append(f"gamma {num(used.get('gamma'))}")
+        parts = [f"kernel {used.kernel}", f"C {num(used.C)}"]
+        if used.kernel != "linear":
+            gamma = used.gamma_value if used.gamma_value is not None else used.gamma
+            parts.append(f"gamma {num(gamma)}")
         self.used.setText("Latest fit: " + ", ".join(parts))

@@ -180,7 +180,7 @@ def svm_scores(X: np.ndarray, labels: np.ndarray, seed: int) -> tuple[dict, dict
     secs["auto"] = time.perf_counter() - t
     scores["auto"] = fit.rows["score"].to_numpy(float)
     scores["auto_training"] = -fit.rows["margin"].to_numpy(float)
-    chosen = f"{fit.settings['kernel']} C={float(fit.settings['C']):g}"
+    chosen = f"{fit.settings.kernel} C={float(fit.settings.C):g}"
     for kernel in ("linear", "rbf"):
         t = time.perf_counter()
         fit = fit_margins(X, lab, FitSettings(kernel=kernel, C=1.0, gamma="scale", seed=seed))

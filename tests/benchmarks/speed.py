@@ -49,7 +49,7 @@ def run_case(method: str, n: int) -> dict:
     started = time.perf_counter()
     if method == "tool":
         result = fit_margins(X, y, FitSettings(kernel="linear", C=1.0, folds=5, solver="auto"))
-        solver = result.summary["problems"][0]["solver"]
+        solver = result.summary.problems[0]["solver"]
         assert np.isfinite(result.rows["heldout_margin"]).all(), "a row got no held-out margin"
     else:
         model = LinearSVC(C=1.0)

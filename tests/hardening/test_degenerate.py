@@ -54,7 +54,7 @@ def test_a_class_with_one_row_still_ranks_it_and_says_why_heldout_is_empty() -> 
     assert np.isnan(lonely["heldout_margin"])
     assert np.isfinite(lonely["slack"]) and lonely["rank"] >= 1
     assert sorted(result.rows["rank"]) == list(range(1, 32))  # every row ranked once
-    assert any("single labelled row" in note for note in result.summary["notes"])
+    assert any("single labelled row" in note for note in result.summary.notes)
 
 
 def test_all_features_constant_is_refused_with_the_reason() -> None:
@@ -148,7 +148,7 @@ def test_extreme_C_finishes_with_finite_slack(kernel: str, C: float) -> None:
     result = _fit(frame, FitSettings(kernel=kernel, C=C, folds=2))
     for col in ("margin", "slack", "heldout_slack", "alpha"):
         assert np.isfinite(result.rows[col]).all(), col
-    assert result.settings["C"] == C
+    assert result.settings.C == C
     if C == 1e-6:
         # A tiny C puts every row at its bound with slack near 1 (f is close to constant).
         assert (result.rows["support"] == "bound_support").all()
@@ -158,14 +158,14 @@ def test_a_capped_solver_reports_it_did_not_converge(monkeypatch) -> None:
     frame = _two_blobs(60, seed=5, overlap=2.0)  # heavily overlapping classes
     monkeypatch.setattr(engine, "MAX_ITER", 3)
     result = _fit(frame, FitSettings(kernel="rbf", C=100.0, folds=0))
-    (problem,) = result.summary["problems"]
+    (problem,) = result.summary.problems
     assert problem["converged"] is False
-    assert any("iteration limit (3 iterations)" in note for note in result.summary["notes"])
+    assert any("iteration limit (3 iterations)" in note for note in result.summary.notes)
     assert np.isfinite(result.rows["slack"]).all()
 
 
 def test_an_uncapped_solver_converges_and_adds_no_note() -> None:
     frame = _two_blobs(60, seed=5, overlap=2.0)
     result = _fit(frame, FitSettings(kernel="rbf", C=100.0, folds=0))
-    assert result.summary["problems"][0]["converged"] is True
-    assert not any("iteration limit" in note for note in result.summary["notes"])
+    assert result.summary.problems[0]["converged"] is True
+    assert not any("iteration limit" in note for note in result.summary.notes)

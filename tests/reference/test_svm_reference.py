@@ -215,8 +215,8 @@ def test_rows_past_the_boundary_never_exceed_sum_of_slack(seed: int, C: float, k
     slack = result.rows["slack"].to_numpy()
     # Cortes & Vapnik 1995: #{xi_i > 1} <= sum_i xi_i (each such row contributes more than 1).
     assert np.sum(slack > 1) <= slack.sum() + 1e-9
-    assert result.summary["sum_slack"] == pytest.approx(slack.sum())
-    assert result.summary["zone_counts"]["wrong_side"] == int(np.sum(slack > 1))
+    assert result.summary.sum_slack == pytest.approx(slack.sum())
+    assert result.summary.zone_counts["wrong_side"] == int(np.sum(slack > 1))
 
 
 # --- Fisher's iris: what is separable and what is not ------------------------------------------
@@ -237,7 +237,7 @@ def test_iris_setosa_is_linearly_separable() -> None:
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1e4, folds=0))
     slack = result.rows["slack"].to_numpy()
     assert slack.max() <= 1e-3
-    assert result.summary["zone_counts"]["clear"] == 150
+    assert result.summary.zone_counts["clear"] == 150
 
 
 def test_iris_versicolor_virginica_overlap() -> None:
@@ -246,7 +246,7 @@ def test_iris_versicolor_virginica_overlap() -> None:
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1e4, folds=0))
     slack = result.rows["slack"].to_numpy()
     assert slack.max() > 0.1
-    assert result.summary["zone_counts"]["clear"] < 100
+    assert result.summary.zone_counts["clear"] < 100
 
 
 # --- Margin definitions ------------------------------------------------------------------------

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -22,7 +21,7 @@ from reviewer.core.model.engine import (
 from reviewer.core.model.heldout import heldout_decision
 from reviewer.core.model.tuning import choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
-from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings
+from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings, FitSummary
 
 ROW_COLUMNS = (
     "margin",
@@ -43,14 +42,14 @@ class FitResult:
     """Per-row results aligned with the whole table, plus a summary of the fit."""
 
     rows: pd.DataFrame  # ROW_COLUMNS, one row per table row, in table order
-    settings: dict[str, Any]  # the settings actually used (auto resolved)
-    summary: dict[str, Any]
+    settings: FitSettings  # the settings actually used (auto resolved, gamma_value set)
+    summary: FitSummary
     model: SoftMarginClassifier | None = field(default=None, repr=False)
     decision: np.ndarray | None = field(default=None, repr=False)  # (n, K) on every row
 
     @property
     def classes(self) -> list[str]:
-        return list(self.summary["classes"])
+        return list(self.summary.classes)
 
 
 def fit_margins(
@@ -211,10 +210,16 @@ def fit_margins(
     summary = summarise(
         rows, labels, fit_mask, has_label, classes, model, notes, held_margin, F_held, y_all
     )
-    summary["candidates"] = candidates
-    summary["seconds"] = round(time.perf_counter() - started, 3)
+    summary.candidates = candidates
+    summary.seconds = round(time.perf_counter() - started, 3)
     report(1.0, "fit finished")
-    return FitResult(rows=rows, settings=resolved, summary=summary, model=model, decision=F)
+    return FitResult(
+        rows=rows,
+        settings=FitSettings.from_dict(resolved),
+        summary=summary,
+        model=model,
+        decision=F,
+    )
 
 
 def ranks_from_score(score: np.ndarray, tie_break: np.ndarray | None = None) -> np.ndarray:
@@ -245,38 +250,38 @@ def summarise(
     held_margin: np.ndarray,
     F_held: np.ndarray | None,
     y_all: np.ndarray,
-) -> dict[str, Any]:
+) -> FitSummary:
     fitted = rows[fit_mask]
     zone_counts = {z: int((fitted["zone"] == z).sum()) for z in ZONES}
     support_counts = {s: int((fitted["support"] == s).sum()) for s in SUPPORTS}
     class_counts = {str(c): int(np.sum(labels[fit_mask].astype(str) == c)) for c in classes}
     problems = problem_summaries(model)
-    out: dict[str, Any] = {
-        "n_rows": len(rows),
-        "n_fitted": int(fit_mask.sum()),
-        "n_unlabelled": int((~has_label).sum()),
-        "n_left_out": int((has_label & ~fit_mask).sum()),
-        "classes": [str(c) for c in classes],
-        "class_counts": class_counts,
-        "zone_counts": zone_counts,
-        "support_counts": support_counts,
-        "sum_slack": float(fitted["slack"].sum()),
-        "problems": problems,
-        "primal": float(sum(p["primal"] for p in problems)),
-        "dual": float(sum(p["dual"] for p in problems)),
-        "notes": notes,
-    }
+    out = FitSummary(
+        n_rows=len(rows),
+        n_fitted=int(fit_mask.sum()),
+        n_unlabelled=int((~has_label).sum()),
+        n_left_out=int((has_label & ~fit_mask).sum()),
+        classes=[str(c) for c in classes],
+        class_counts=class_counts,
+        zone_counts=zone_counts,
+        support_counts=support_counts,
+        sum_slack=float(fitted["slack"].sum()),
+        problems=problems,
+        primal=float(sum(p["primal"] for p in problems)),
+        dual=float(sum(p["dual"] for p in problems)),
+        notes=notes,
+    )
     F_fit = model.training_decision()
     y_fit = y_all[fit_mask]
     pred = np.argmax(F_fit, axis=1)
-    out["training_accuracy"] = float(accuracy_score(y_fit, pred))
+    out.training_accuracy = float(accuracy_score(y_fit, pred))
     if F_held is not None:
         Fh = F_held[fit_mask]
         ok = ~np.all(np.isnan(Fh), axis=1)
         ph = np.argmax(np.where(np.isnan(Fh), -np.inf, Fh), axis=1)
-        out["heldout_accuracy"] = float(accuracy_score(y_fit[ok], ph[ok]))
-        out["heldout_balanced_accuracy"] = float(balanced_accuracy_score(y_fit[ok], ph[ok]))
-        out["sum_heldout_slack"] = float(np.nansum(rows["heldout_slack"].to_numpy()[fit_mask]))
+        out.heldout_accuracy = float(accuracy_score(y_fit[ok], ph[ok]))
+        out.heldout_balanced_accuracy = float(balanced_accuracy_score(y_fit[ok], ph[ok]))
+        out.sum_heldout_slack = float(np.nansum(rows["heldout_slack"].to_numpy()[fit_mask]))
     if len(classes) == 2 and problems[0].get("margin_width") is not None:
-        out["margin_width"] = problems[0]["margin_width"]
+        out.margin_width = problems[0]["margin_width"]
     return out

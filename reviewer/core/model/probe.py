@@ -168,8 +168,8 @@ def probe_labels(
         top=top,
         auroc=auroc,
         average_precision=ap,
-        settings=dict(fit.settings),
-        notes=list(fit.summary.get("notes", [])),
+        settings=fit.settings.to_dict(),
+        notes=list(fit.summary.notes),
     )
 
 

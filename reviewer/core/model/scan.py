@@ -68,7 +68,7 @@ def scan_table(
     groups = conflicting_duplicates(loaded.frame, roles, labels)
     if groups:
         shown = "; ".join(", ".join(str(ids[r]) for r in g[:4]) for g in groups[:3])
-        fit.summary["notes"].append(
+        fit.summary.notes.append(
             f"{len(groups)} group(s) of rows with identical features but different labels "
             f"(a classic sign of label noise), e.g. {shown}"
         )

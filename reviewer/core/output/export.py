@@ -782,7 +782,7 @@ def write_summary_html(
     Every value is HTML-escaped. The app version (reviewer.__version__) and a caution
     sentence (CAUTION) are always included.
     """
-    from reviewer import __version__
+    from reviewer._version import __version__
 
     for key in ("source_path", "source_sha256"):
         if key not in summary:

@@ -30,21 +30,18 @@ class Comparison:
 def compare_fits(before: FitResult, after: FitResult) -> Comparison:
     sb, sa = before.summary, after.summary
     metrics: dict[str, tuple[Any, Any]] = {
-        "rows fitted": (sb.get("n_fitted"), sa.get("n_fitted")),
-        "held-out accuracy": (sb.get("heldout_accuracy"), sa.get("heldout_accuracy")),
-        "held-out balanced accuracy": (
-            sb.get("heldout_balanced_accuracy"),
-            sa.get("heldout_balanced_accuracy"),
-        ),
-        "training accuracy": (sb.get("training_accuracy"), sa.get("training_accuracy")),
-        "sum of slacks": (sb.get("sum_slack"), sa.get("sum_slack")),
+        "rows fitted": (sb.n_fitted, sa.n_fitted),
+        "held-out accuracy": (sb.heldout_accuracy, sa.heldout_accuracy),
+        "held-out balanced accuracy": (sb.heldout_balanced_accuracy, sa.heldout_balanced_accuracy),
+        "training accuracy": (sb.training_accuracy, sa.training_accuracy),
+        "sum of slacks": (sb.sum_slack, sa.sum_slack),
     }
     for z in ZONES:
-        metrics[f"rows {z}"] = (sb["zone_counts"].get(z), sa["zone_counts"].get(z))
+        metrics[f"rows {z}"] = (sb.zone_counts.get(z), sa.zone_counts.get(z))
     for s in SUPPORTS:
-        metrics[f"rows {s}"] = (sb["support_counts"].get(s), sa["support_counts"].get(s))
-    if "margin_width" in sb or "margin_width" in sa:
-        metrics["margin width 2/||w||"] = (sb.get("margin_width"), sa.get("margin_width"))
+        metrics[f"rows {s}"] = (sb.support_counts.get(s), sa.support_counts.get(s))
+    if sb.margin_width is not None or sa.margin_width is not None:
+        metrics["margin width 2/||w||"] = (sb.margin_width, sa.margin_width)
     sug_b = before.rows["model_label"].to_numpy()
     sug_a = after.rows["model_label"].to_numpy()
     changed_suggestion = int(np.sum(np.array([a != b for a, b in zip(sug_b, sug_a, strict=True)])))

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from reviewer import __version__
+from reviewer._version import __version__
 from reviewer.core import values
 from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import LoadedTable, label_strings, load_table, sha256_of
@@ -44,7 +44,7 @@ from reviewer.core.review.context import (
 )
 from reviewer.core.review.editlog import Event, LabelState
 from reviewer.core.review.sessionfile import SessionFile
-from reviewer.core.values import ROW_COLUMNS, FitSettings
+from reviewer.core.values import ROW_COLUMNS, FitSettings, FitSummary
 
 SESSION_SUFFIX = ".review.sqlite"
 APP_NAME = "margin-reviewer"
@@ -389,7 +389,7 @@ class ReviewSession:
             "fit_is_current": self.fit_is_current,
         }
         if self.latest is not None:
-            out["zones"] = dict(self.latest.summary["zone_counts"])
+            out["zones"] = dict(self.latest.summary.zone_counts)
         return out
 
     # ---- edits -------------------------------------------------------------------------------
@@ -529,7 +529,9 @@ class ReviewSession:
         """Keep a finished fit as the latest (or the baseline) and save its per-row results."""
         slot = "baseline" if job.baseline else "latest"
         if not self.read_only:
-            self.file.save_fit(slot, result.settings, _jsonable(result.summary), result.rows)
+            self.file.save_fit(
+                slot, result.settings.to_dict(), _jsonable(result.summary.to_dict()), result.rows
+            )
         if job.baseline:
             self.baseline = result
         else:
@@ -539,7 +541,10 @@ class ReviewSession:
                 self.baseline = result
                 if not self.read_only:
                     self.file.save_fit(
-                        "baseline", result.settings, _jsonable(result.summary), result.rows
+                        "baseline",
+                        result.settings.to_dict(),
+                        _jsonable(result.summary.to_dict()),
+                        result.rows,
                     )
         self._norms = None
         self._announce("fitted", result)
@@ -567,7 +572,11 @@ class ReviewSession:
             rows = record.rows.copy()
             for col in ("zone", "support", "model_label"):
                 rows[col] = rows[col].astype(object).where(rows[col].notna(), None)
-            result = FitResult(rows=rows, settings=record.settings, summary=record.summary)
+            result = FitResult(
+                rows=rows,
+                settings=FitSettings.from_dict(record.settings),
+                summary=FitSummary.from_dict(record.summary),
+            )
             if slot == "baseline":
                 self.baseline = result
             else:
@@ -673,7 +682,7 @@ class ReviewSession:
             "source_sha256": self.loaded.source.sha256,
             "reviewer": self.reviewer,
             "label_column": self.roles.label,
-            "settings": (self.latest.settings if self.latest else self.settings.to_dict()),
+            "settings": (self.latest.settings if self.latest else self.settings).to_dict(),
             "counts_by_action": by_action,
             "counts_by_reason": by_reason,
         }

@@ -191,7 +191,7 @@ def test_unlabelled_rows_are_kept_and_left_out_of_the_fit(tmp_path: Path) -> Non
     X, _ = feature_matrix(loaded.frame, roles)
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1.0, folds=3))
     s = result.summary
-    assert (s["n_rows"], s["n_fitted"], s["n_unlabelled"]) == (n, n - 3, 3)
+    assert (s.n_rows, s.n_fitted, s.n_unlabelled) == (n, n - 3, 3)
     rows = result.rows
     # An unlabelled row has no margin against a label, but the model still suggests one.
     assert rows.loc[[3, 17, 40], "margin"].isna().all()

@@ -36,8 +36,8 @@ def test_excluded_row_is_scored_by_a_model_that_never_saw_it() -> None:
     excluded = np.zeros(len(labels), dtype=bool)
     excluded[7] = True
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1.0, folds=0), excluded=excluded)
-    assert result.summary["n_fitted"] == len(labels) - 1
-    assert result.summary["n_left_out"] == 1
+    assert result.summary.n_fitted == len(labels) - 1
+    assert result.summary.n_left_out == 1
     assert np.isnan(result.rows.loc[7, "alpha"])
     # reference: scikit-learn SVC fitted without row 7, one class against the rest
     keep = ~excluded
@@ -71,7 +71,7 @@ def test_small_class_lowers_folds_with_a_note() -> None:
     labels[:] = "big"
     labels[[0, 1]] = "tiny"
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1.0, folds=5))
-    assert any("lowered from 5 to 2" in note for note in result.summary["notes"])
+    assert any("lowered from 5 to 2" in note for note in result.summary.notes)
     assert result.rows["heldout_margin"].notna().all()
 
 
@@ -81,7 +81,7 @@ def test_single_row_class_gets_empty_heldout_margin() -> None:
     labels[0] = "lonely"
     labels[30:] = "other"
     result = fit_margins(X, labels, FitSettings(kernel="linear", C=1.0, folds=5))
-    notes = " ".join(result.summary["notes"])
+    notes = " ".join(result.summary.notes)
     assert "single labelled row" in notes
     assert np.isnan(result.rows.loc[0, "heldout_margin"])
     # its score falls back to the training margin, so it is still ranked
@@ -110,6 +110,6 @@ def test_one_class_is_refused() -> None:
 def test_auto_reports_what_it_chose() -> None:
     X, labels = _blobs(n=120)
     result = fit_margins(X, labels, FitSettings())
-    assert result.settings["kernel"] in ("linear", "rbf")
-    assert result.summary["candidates"]
-    assert result.summary["notes"][0].startswith("auto chose")
+    assert result.settings.kernel in ("linear", "rbf")
+    assert result.summary.candidates
+    assert result.summary.notes[0].startswith("auto chose")

@@ -167,7 +167,7 @@ def test_compare_counts_and_metrics_table_match_a_recount() -> None:
     table = plotdata.metrics_table(comp.metrics).set_index("metric")
     line = table.loc["rows wrong_side"]
     assert line["change"] == np.sum(za == "wrong_side") - np.sum(zb == "wrong_side")
-    assert table.loc["held-out accuracy", "after"] == after.summary["heldout_accuracy"]
+    assert table.loc["held-out accuracy", "after"] == after.summary.heldout_accuracy
 
 
 def test_score_on_reference_against_a_hand_count() -> None:
