@@ -10,19 +10,21 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (
     QAbstractItemView,
-    QFormLayout,
-    QHBoxLayout,
+    QGridLayout,
     QLabel,
     QPlainTextEdit,
+    QSplitter,
     QTableView,
     QVBoxLayout,
     QWidget,
 )
 
 from reviewer.core.door import ReviewSession
+from reviewer.core.values import REVIEW_NAMES, display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.table_model import SOURCE_ROW_ROLE, ArrayTableModel, ColumnSpec
+from reviewer.gui.widgets import ElidedLabel
 
 _FIT_FIELDS = (
     ("margin", "Margin"),
@@ -41,7 +43,17 @@ def _text(value: object) -> str:
         return "–"
     if isinstance(value, (float, np.floating)):
         return "–" if math.isnan(value) else f"{value:.3f}"
-    return str(value).replace("_", " ")
+    return display_name(str(value))
+
+
+def _titled(title: str, body: QWidget) -> QWidget:
+    box = QWidget()
+    lay = QVBoxLayout(box)
+    lay.setContentsMargins(0, 0, 0, 0)
+    lay.setSpacing(2)
+    lay.addWidget(ElidedLabel(title))
+    lay.addWidget(body, 1)
+    return box
 
 
 def _small_table(name: str) -> QTableView:
@@ -65,48 +77,63 @@ class RowPanel(QWidget):
         self.bus = bus
         self.session: ReviewSession | None = None
         self.row: int | None = None
-        outer = QHBoxLayout(self)
-        outer.setContentsMargins(6, 6, 6, 6)
-
-        facts = QVBoxLayout()
-        self.title = QLabel("No row selected")
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(6, 4, 6, 4)
+        self.title = ElidedLabel("No row selected")
         self.title.setObjectName("row_title")
-        facts.addWidget(self.title)
-        form = QFormLayout()
+        outer.addWidget(self.title)
+        # Four parts side by side in a splitter: each can be narrowed (or collapsed), so the
+        # panel never makes the window wider than the screen.
+        self.split = QSplitter(Qt.Orientation.Horizontal)
+        self.split.setObjectName("row_split")
+        self.split.setChildrenCollapsible(True)
+        outer.addWidget(self.split, 1)
+
+        facts = QWidget()
+        grid = QGridLayout(facts)
+        grid.setContentsMargins(0, 0, 6, 0)
+        grid.setHorizontalSpacing(8)
+        grid.setVerticalSpacing(2)
         self.values: dict[str, QLabel] = {}
-        for key, text in (("label", "Label"), ("review", "Review state"), *_FIT_FIELDS):
-            lab = QLabel("–")
+        fields = (("label", "Label"), ("review", "Review state"), *_FIT_FIELDS)
+        half = (len(fields) + 1) // 2
+        for i, (key, text) in enumerate(fields):
+            lab = ElidedLabel("–")
             lab.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
             self.values[key] = lab
-            form.addRow(text, lab)
-        facts.addLayout(form)
-        facts.addStretch(1)
-        outer.addLayout(facts, 2)
+            name = QLabel(text)
+            name.setObjectName("hint")
+            r, c = i % half, 2 * (i // half)
+            grid.addWidget(name, r, c)
+            grid.addWidget(lab, r, c + 1)
+        grid.setColumnStretch(1, 1)
+        grid.setColumnStretch(3, 1)
+        grid.setRowStretch(half, 1)
+        self.split.addWidget(facts)
 
-        feats = QVBoxLayout()
-        feats.addWidget(QLabel("Features beside the class's typical values (tinted: unusual)"))
         self.features_model = ArrayTableModel()
         self.features = _small_table("features_table")
         self.features.setModel(self.features_model)
-        feats.addWidget(self.features)
-        outer.addLayout(feats, 4)
+        self.split.addWidget(
+            _titled("Features beside the class's typical values (tinted: unusual)", self.features)
+        )
 
-        nbrs = QVBoxLayout()
-        nbrs.addWidget(QLabel("Nearest labelled rows (tinted: another label; click to go)"))
         self.neighbours_model = ArrayTableModel()
         self.neighbours = _small_table("neighbours_table")
         self.neighbours.setModel(self.neighbours_model)
         self.neighbours.clicked.connect(self._neighbour_clicked)
-        nbrs.addWidget(self.neighbours)
-        outer.addLayout(nbrs, 3)
+        self.split.addWidget(
+            _titled("Nearest labelled rows (tinted: another label; click to go)", self.neighbours)
+        )
 
-        hist = QVBoxLayout()
-        hist.addWidget(QLabel("This row's history"))
         self.history = QPlainTextEdit()
         self.history.setObjectName("history")
         self.history.setReadOnly(True)
-        hist.addWidget(self.history)
-        outer.addLayout(hist, 1)
+        self.history.setLineWrapMode(QPlainTextEdit.LineWrapMode.WidgetWidth)
+        self.split.addWidget(_titled("This row's history", self.history))
+        for i, stretch in enumerate((3, 4, 4, 3)):
+            self.split.setStretchFactor(i, stretch)
+        self.split.setSizes([360, 360, 330, 260])
 
         bus.row_selected.connect(self.show_row)
 
@@ -129,8 +156,10 @@ class RowPanel(QWidget):
             self.neighbours_model.set_columns([])
             self.history.setPlainText("")
             return
-        self.title.setText(f"Row {row}   ·   {s.roles.id or 'id'} {s.ids[row]}")
-        from reviewer.core.values import REVIEW_NAMES
+        # Without an id column the id is the row number: say it once.
+        self.title.setText(
+            f"Row {row}   ·   {s.roles.id} {s.ids[row]}" if s.roles.id else f"Row {row}"
+        )
 
         self.values["label"].setText(_text(s.labels[row]))
         self.values["review"].setText(REVIEW_NAMES[int(s.review[row])])

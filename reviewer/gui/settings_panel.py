@@ -120,4 +120,8 @@ class SettingsPanel(QWidget):
         if used.kernel != "linear":
             gamma = used.gamma_value if used.gamma_value is not None else used.gamma
             parts.append(f"gamma {num(gamma)}")
-        self.used.setText("Latest fit: " + ", ".join(parts))
+        asked_auto = self.kernel.currentText() == "auto"
+        if asked_auto and used.C is not None:
+            # Under auto the C box is disabled; show in it the C that auto chose.
+            self.C.setValue(float(used.C))
+        self.used.setText(("auto chose: " if asked_auto else "Latest fit: ") + ", ".join(parts))

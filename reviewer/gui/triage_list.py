@@ -125,10 +125,10 @@ class TriageList(QWidget):
         self.reason_combo = QComboBox()
         self.reason_combo.setEditable(True)
         self.reason_combo.addItems(["", *values.REASONS])
-        _compact(self.reason_combo, 14)
+        _compact(self.reason_combo, 10)
         self.reason_combo.setToolTip("Goes with the next decision only (choose or type)")
         self.reason_combo.lineEdit().setPlaceholderText("for the next decision")
-        deck.addWidget(self.reason_combo, 2)
+        deck.addWidget(self.reason_combo, 1)
         lay.addLayout(deck)
         bus.rows_filter.connect(self._on_bus_filter)
         bus.row_selected.connect(self._on_bus_row)
@@ -203,22 +203,22 @@ class TriageList(QWidget):
             ColumnSpec("label", "Label", self.labels()),
             ColumnSpec("model_label", "Model's label", self.fit_column("model_label")),
             ColumnSpec(
-                "slack",
-                "Slack",
-                self.fit_column("slack"),
-                decimals=3,
-                tooltip="How far past its own margin the row sits (0 = clear)",
-            ),
-            ColumnSpec(
                 "heldout_slack",
                 "Held-out slack",
                 self.fit_column("heldout_slack"),
                 decimals=3,
                 tooltip="Slack from a model that did not see this row",
             ),
+            ColumnSpec(
+                "slack",
+                "Slack",
+                self.fit_column("slack"),
+                decimals=3,
+                tooltip="How far past its own margin the row sits (0 = clear)",
+            ),
             ColumnSpec("zone", "Zone", self.fit_column("zone"), formatter=display_name),
-            ColumnSpec("support", "Support", self.fit_column("support"), formatter=display_name),
             ColumnSpec("review", "Review", self.review_names(), formatter=review_text),
+            ColumnSpec("support", "Support", self.fit_column("support"), formatter=display_name),
         ]
         frame = s.frame
         for i, col in enumerate(s.roles.features):

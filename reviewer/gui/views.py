@@ -36,11 +36,13 @@ from PySide6.QtWidgets import (
 
 from reviewer.core import door
 from reviewer.core.door import COMPARISON_CAUTION as CAUTION
-from reviewer.core.door import Comparison
+from reviewer.core.door import Comparison, ReviewSession
 from reviewer.core.errors import ReviewerError
+from reviewer.core.values import display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
-from reviewer.gui.plots import CCurvePlot, ProjectionPlot, SlackHistogramPlot
+from reviewer.gui.c_curve import CCurvePlot
+from reviewer.gui.plots import ProjectionPlot, SlackHistogramPlot
 from reviewer.gui.table_model import ArrayTableModel, ColumnSpec
 
 
@@ -58,11 +60,18 @@ def _fmt(value: Any, signed: bool = False) -> str:
     return str(value)
 
 
+def metric_name(name: str) -> str:
+    """A metric's name with every code in it shown by its display name."""
+    return " ".join(display_name(word) for word in str(name).split(" "))
+
+
 class CompareView(QWidget):
     """The baseline fit (source labels) against the latest fit: metrics, rows whose zone
     changed (click one to select it), the caution, and an optional trusted reference."""
 
-    def __init__(self, session: Any, bus: ReviewBus, parent: QWidget | None = None) -> None:
+    def __init__(
+        self, session: ReviewSession, bus: ReviewBus, parent: QWidget | None = None
+    ) -> None:
         super().__init__(parent)
         self.session = session
         self.bus = bus
@@ -83,12 +92,17 @@ class CompareView(QWidget):
         self.metrics.setHorizontalHeaderLabels(["metric", "before", "after", "change"])
         self.metrics.verticalHeader().setVisible(False)
         self.metrics.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
-        self.metrics.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+        # Every column as wide as its text: a metric's name is never cut off; a narrow dock
+        # scrolls instead.
+        self.metrics.horizontalHeader().setSectionResizeMode(
+            QHeaderView.ResizeMode.ResizeToContents
+        )
+        self.metrics.horizontalHeader().setStretchLastSection(False)
 
         self.reference_button = QPushButton("Score on a trusted reference file...")
         self.reference_button.setToolTip(
-            "A CSV, Parquet or Excel file with an id column and trusted labels; both fits' "
-            "the model's labels are scored against it, matched by id"
+            "A CSV, Parquet or Excel file with an id column and trusted labels; the model's "
+            "labels of both fits are scored against it, matched by id"
         )
         self.reference_label = QLabel("No reference file loaded.")
         self.reference_label.setWordWrap(True)
@@ -110,11 +124,11 @@ class CompareView(QWidget):
         self.changed_view.activated.connect(self._on_changed_clicked)
         self.changed_title = QLabel("Rows whose zone changed")
 
-        top = QSplitter(Qt.Orientation.Horizontal)
+        top = QSplitter(Qt.Orientation.Vertical)
         top.addWidget(self.metrics)
         top.addWidget(side)
         top.setStretchFactor(0, 3)
-        top.setStretchFactor(1, 2)
+        top.setStretchFactor(1, 1)
         bottom = QWidget()
         bl = QVBoxLayout(bottom)
         bl.setContentsMargins(0, 0, 0, 0)
@@ -146,7 +160,12 @@ class CompareView(QWidget):
         self.table = door.metrics_table(comp.metrics)
         self.metrics.setRowCount(len(self.table))
         for i, line in enumerate(self.table.itertuples(index=False)):
-            cells = [line.metric, _fmt(line.before), _fmt(line.after), _fmt(line.change, True)]
+            cells = [
+                metric_name(line.metric),
+                _fmt(line.before),
+                _fmt(line.after),
+                _fmt(line.change, True),
+            ]
             for j, text in enumerate(cells):
                 item = QTableWidgetItem(text)
                 if j:
@@ -157,11 +176,23 @@ class CompareView(QWidget):
         self.metrics.resizeColumnsToContents()
         ch = comp.changed_rows
         rows = ch["row"].to_numpy()
+        labels = np.array([None if v is None else str(v) for v in s.labels], dtype=object)
         self.changed_model.set_columns(
             [
-                ColumnSpec("row_id", "row id", np.asarray(s.ids, dtype=object)[rows]),
-                ColumnSpec("zone_before", "zone before", ch["zone_before"].to_numpy(dtype=object)),
-                ColumnSpec("zone_after", "zone after", ch["zone_after"].to_numpy(dtype=object)),
+                ColumnSpec("row_id", s.roles.id or "row", np.asarray(s.ids, dtype=object)[rows]),
+                ColumnSpec("label", "label", labels[rows]),
+                ColumnSpec(
+                    "zone_before",
+                    "zone before",
+                    ch["zone_before"].to_numpy(dtype=object),
+                    formatter=display_name,
+                ),
+                ColumnSpec(
+                    "zone_after",
+                    "zone after",
+                    ch["zone_after"].to_numpy(dtype=object),
+                    formatter=display_name,
+                ),
                 ColumnSpec("slack_before", "slack before", ch["slack_before"].to_numpy(float)),
                 ColumnSpec("slack_after", "slack after", ch["slack_after"].to_numpy(float)),
                 ColumnSpec(
@@ -265,7 +296,7 @@ class ViewsPanel(QTabWidget):
 
     def __init__(
         self,
-        session: Any,
+        session: ReviewSession,
         bus: ReviewBus,
         parent: QWidget | None = None,
         *,
@@ -328,7 +359,7 @@ def widget_png(widget: QWidget) -> bytes:
 
 
 def render_views_png(
-    session: Any, panel: ViewsPanel | None = None, *, size: tuple[int, int] = (960, 680)
+    session: ReviewSession, panel: ViewsPanel | None = None, *, size: tuple[int, int] = (960, 680)
 ) -> dict[str, bytes]:
     """Caption -> PNG of each view, for ``write_summary_html``'s ``images``.
 

@@ -88,10 +88,17 @@ def test_a_row_selected_elsewhere_is_ringed(panel, session) -> None:
 
 def test_histogram_bars_are_the_core_bins(panel, session) -> None:
     h = panel.histogram
-    bars = h.bars.opts
+    # It starts on the slack the ranking uses (held-out by default) and says so.
+    assert session.latest.settings.score == "heldout"
+    assert h.source_combo.currentData() == "heldout_slack"
+    assert "held-out" in h.ranking_label.text()
+    ref = plotdata.slack_histogram(session.latest.rows["heldout_slack"].to_numpy())
+    np.testing.assert_array_equal(h.bars.opts["height"], ref.counts)
+    # Training slack.
+    h.source_combo.setCurrentIndex(h.source_combo.findData("slack"))
     ref = plotdata.slack_histogram(session.latest.rows["slack"].to_numpy())
-    np.testing.assert_array_equal(bars["height"], ref.counts)
-    np.testing.assert_array_equal(bars["x0"], ref.edges[:-1])
+    np.testing.assert_array_equal(h.bars.opts["height"], ref.counts)
+    np.testing.assert_array_equal(h.bars.opts["x0"], ref.edges[:-1])
     # Held-out slack, one class.
     h.source_combo.setCurrentIndex(h.source_combo.findData("heldout_slack"))
     h.class_combo.setCurrentIndex(h.class_combo.findData("premium"))
@@ -107,16 +114,21 @@ def test_histogram_bars_are_the_core_bins(panel, session) -> None:
 def test_dragging_the_threshold_filters_rows_above_it(qtbot, panel, session) -> None:
     h = panel.histogram
     line = h.threshold
+    # Before any drag the line claims no filter: the list shows every row.
+    assert "filter" in line.label.format and ">" not in line.label.format
     with qtbot.waitSignal(panel.bus.rows_filter, timeout=2000) as blocker:
         # What a drag ends with: the line moved, then "position change finished".
         line.setValue(0.4)
         line.sigPositionChangeFinished.emit(line)
-    slack = session.latest.rows["slack"].to_numpy()
+    slack = session.latest.rows["heldout_slack"].to_numpy()
     np.testing.assert_array_equal(blocker.args[0], slack > 0.4)
     assert 0 < blocker.args[0].sum() < session.n_rows
+    # The line now says what the list shows: which slack, the threshold, how many rows.
+    assert f"held-out ξ > 0.40 ({int((slack > 0.4).sum()):,} rows)" in line.label.format
     with qtbot.waitSignal(panel.bus.rows_filter, timeout=2000) as blocker:
         h.clear_button.click()
     assert blocker.args == [None]
+    assert ">" not in line.label.format
 
 
 def test_compare_view_shows_compare_fits_numbers(qtbot, panel, session) -> None:
@@ -129,12 +141,24 @@ def test_compare_view_shows_compare_fits_numbers(qtbot, panel, session) -> None:
     }
     assert len(shown) == len(comp.metrics)
     b, a = comp.metrics["rows wrong_side"]
-    assert shown["rows wrong_side"] == [str(b), str(a), f"{a - b:+d}"]
+    # Codes are shown by their one display name, never as the file code.
+    assert shown["rows wrong side"] == [str(b), str(a), f"{a - b:+d}"]
+    assert not any("_" in name for name in shown)
+    # Every metric name is readable in full: its column is at least as wide as its text.
+    fm = table.fontMetrics()
+    widest = max(fm.horizontalAdvance(name) for name in shown)
+    assert table.columnWidth(0) >= widest
     b, a = comp.metrics["held-out accuracy"]
     assert shown["held-out accuracy"][:2] == [f"{b:.4f}", f"{a:.4f}"]
     assert b != a  # the edits changed the fit, so the table has something to show
     model = panel.compare.changed_model
     assert model.rowCount() == len(comp.changed_rows) > 0
+    # Each changed row carries its label and the model's label, not only its zones.
+    first = int(comp.changed_rows["row"].to_numpy()[0])
+    assert model.column_spec("label").values[0] == session.labels[first]
+    assert model.column_spec("model_label_after").values[0] == str(
+        comp.changed_rows["model_label_after"].to_numpy()[0]
+    )
     # Clicking a changed row selects that table row.
     index = model.index(0, 0)
     want = int(comp.changed_rows["row"].to_numpy()[model.source_row(0)])
@@ -190,7 +214,7 @@ def test_panel_redraws_after_a_new_fit(qtbot, panel, session) -> None:
     before = panel.histogram.bars.opts["height"].copy()
     session.fit(FitSettings(kernel="rbf", C=0.5, folds=3))
     panel.bus.fit_changed.emit()
-    after = plotdata.slack_histogram(session.latest.rows["slack"].to_numpy()).counts
+    after = plotdata.slack_histogram(session.latest.rows["heldout_slack"].to_numpy()).counts
     np.testing.assert_array_equal(panel.histogram.bars.opts["height"], after)
     assert not np.array_equal(before, after)
     session.fit(FitSettings(kernel="rbf", C=10, folds=3))
