@@ -71,7 +71,6 @@ class ActionSpec:
     enabled: Rule = always
     args: tuple[object, ...] = ()
     help_keys: str | None = None
-    text_beside: bool = True
 
 
 MENUS = ("File", "Edit", "Decide", "Fit", "View", "Help")
@@ -265,6 +264,8 @@ def spec(action_id: str) -> ActionSpec:
 def key_text(a: ActionSpec) -> str:
     if a.help_keys:
         return a.help_keys
+    if not a.keys:
+        return f"{a.menu} menu: {a.title.replace('&', '')}"
     return " or ".join(
         QKeySequence(k).toString(QKeySequence.SequenceFormat.NativeText) for k in a.keys
     )
@@ -272,7 +273,7 @@ def key_text(a: ActionSpec) -> str:
 
 def help_rows(actions: Sequence[ActionSpec] = ACTIONS) -> list[tuple[str, str]]:
     """(keys, what they do) for the help panel: navigation, then every action with help."""
-    return [*NAVIGATION, *((key_text(a), a.help) for a in actions if a.help and a.keys)]
+    return [*NAVIGATION, *((key_text(a), a.help) for a in actions if a.help)]
 
 
 def build_actions(owner: QObject, target: object) -> dict[str, QAction]:

@@ -195,7 +195,7 @@ class ProjectionPlot(QWidget):
             parts.append(f"… {len(classes) - 8} more")
         parts.append(f"<b>◯</b>&nbsp;thick ring: {display_name('wrong_side')}")
         parts.append(f"○&nbsp;thin ring: {display_name('inside_margin')}")
-        parts.append("□ confirmed &nbsp;△ relabelled &nbsp;× excluded")
+        parts.append("□ confirmed &nbsp;▽ relabelled &nbsp;× excluded")
         self.legend.setText(" &nbsp;·&nbsp; ".join(parts))
 
     def drawn_points(self) -> dict[str, np.ndarray]:

@@ -8,7 +8,6 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-import pytest
 from PySide6.QtCore import Qt, QTimer
 
 from reviewer.core import values
