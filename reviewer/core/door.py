@@ -20,7 +20,7 @@ from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
 from reviewer.core.model.scan import ScanOutcome, scan_table
 from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
 from reviewer.core.review.compare import CAUTION as COMPARISON_CAUTION
-from reviewer.core.review.compare import Comparison, compare_fits, score_on_reference
+from reviewer.core.review.compare import Comparison, score_on_reference
 from reviewer.core.review.plotdata import (
     PROJECTION_LIMIT,
     Boundary,
@@ -118,10 +118,9 @@ def probe_file(
 
 
 def compare(session: ReviewSession) -> Comparison | None:
-    """Before against after for the session's baseline and latest fits (None before both)."""
-    if session.baseline is None or session.latest is None:
-        return None
-    return compare_fits(session.baseline, session.latest)
+    """Before (labels as loaded) against after (the edits alone, fitted with the baseline's
+    settings), with the latest fit beside them when its settings differ; None before a fit."""
+    return session.comparison()
 
 
 def read_reference(path: str | Path) -> pd.DataFrame:

@@ -94,9 +94,23 @@ class FitSettings:
         known = {k: data[k] for k in cls.__dataclass_fields__ if k in data}
         return cls(**known)
 
-    def without_resolution(self) -> FitSettings:
-        """The same settings as asked for again (no ``gamma_value``)."""
-        return FitSettings.from_dict({**self.to_dict(), "gamma_value": None})
+    def as_fixed(self) -> FitSettings:
+        """Resolved settings as settings to fit again exactly: the kernel, C and gamma that
+        were used (no ``auto``, no ``scale``)."""
+        gamma = self.gamma_value if self.gamma_value is not None else self.gamma
+        return FitSettings.from_dict({**self.to_dict(), "gamma": gamma, "gamma_value": None})
+
+    def same_fit_as(self, other: FitSettings) -> bool:
+        """True when both resolve to the same model: kernel, C, gamma, degree, class weights,
+        folds, seed, score and solver. Settings with ``auto`` are never the same as others."""
+        if "auto" in (self.kernel, other.kernel):
+            return False
+        a, b = self.as_fixed(), other.as_fixed()
+        if a.kernel == "linear":  # gamma and degree play no part in a linear fit
+            a.gamma = b.gamma = "scale"
+        if a.kernel != "poly":
+            a.degree = b.degree = 3
+        return a.to_dict() == b.to_dict()
 
 
 # ---- edits and review states ------------------------------------------------------------------

@@ -140,7 +140,7 @@ def test_compare_view_shows_compare_fits_numbers(qtbot, panel, session) -> None:
         for i in range(table.rowCount())
     }
     assert len(shown) == len(comp.metrics)
-    b, a = comp.metrics["rows wrong_side"]
+    b, a = comp.metrics["rows wrong side"]
     # Codes are shown by their one display name, never as the file code.
     assert shown["rows wrong side"] == [str(b), str(a), f"{a - b:+d}"]
     assert not any("_" in name for name in shown)

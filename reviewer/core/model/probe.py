@@ -14,12 +14,10 @@ from typing import Any
 import numpy as np
 from sklearn.metrics import average_precision_score, roc_auc_score
 
-from reviewer.core.data.features import feature_matrix
+from reviewer.core.data.dataset import prepare_dataset
 from reviewer.core.data.loading import LoadedTable, label_strings
-from reviewer.core.data.roles import infer_roles
 from reviewer.core.errors import InputError, SettingsError
 from reviewer.core.model.fitting import fit_margins
-from reviewer.core.model.scan import row_ids
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import FitSettings
 
@@ -201,13 +199,17 @@ def probe_table(
     # Check the rate before the (slower) feature build so a bad rate fails at once.
     if label in loaded.frame.columns:
         plant_flips(label_strings(loaded.frame[label]), rate, seed)
-    roles = infer_roles(loaded.frame, label, id_column, overrides)
-    X, _ = feature_matrix(loaded.frame, roles)
-    labels = label_strings(loaded.frame[label])
+    data = prepare_dataset(loaded, label=label, id_column=id_column, overrides=overrides)
     result = probe_labels(
-        X, labels, settings, rate=rate, seed=seed, progress=report.slice(0.05, 1.0), cancel=cancel
+        data.X,
+        data.labels,
+        settings,
+        rate=rate,
+        seed=seed,
+        progress=report.slice(0.05, 1.0),
+        cancel=cancel,
     )
-    result.flipped_ids = row_ids(loaded.frame, id_column)[result.flipped_rows]
+    result.flipped_ids = data.ids[result.flipped_rows]
     return result
 
 

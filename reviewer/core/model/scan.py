@@ -8,10 +8,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from reviewer.core.data.dataset import prepare_dataset
 from reviewer.core.data.duplicates import conflicting_duplicates
-from reviewer.core.data.features import feature_matrix
-from reviewer.core.data.loading import LoadedTable, label_strings
-from reviewer.core.data.roles import ColumnRoles, infer_roles
+from reviewer.core.data.loading import LoadedTable
+from reviewer.core.data.roles import ColumnRoles
 from reviewer.core.model.fitting import FitResult, fit_margins
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import FitSettings
@@ -40,13 +40,6 @@ class ScanOutcome:
     feature_names: list[str]
 
 
-def row_ids(frame: pd.DataFrame, id_column: str | None) -> np.ndarray:
-    """The id column as text, else the 0-based data-row position."""
-    if id_column is None:
-        return np.arange(len(frame)).astype(str).astype(object)
-    return label_strings(frame[id_column])
-
-
 def scan_table(
     loaded: LoadedTable,
     label: str,
@@ -59,12 +52,10 @@ def scan_table(
 ) -> ScanOutcome:
     report = Reporter(progress, cancel)
     settings = (settings or FitSettings()).validate()
-    roles = infer_roles(loaded.frame, label, id_column, overrides)
     report(0.0, "building features")
-    X, names = feature_matrix(loaded.frame, roles)
-    labels = label_strings(loaded.frame[label])
-    fit = fit_margins(X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
-    ids = row_ids(loaded.frame, id_column)
+    data = prepare_dataset(loaded, label=label, id_column=id_column, overrides=overrides)
+    roles, labels, ids = data.roles, data.labels, data.ids
+    fit = fit_margins(data.X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
     groups = conflicting_duplicates(loaded.frame, roles, labels)
     if groups:
         shown = "; ".join(", ".join(str(ids[r]) for r in g[:4]) for g in groups[:3])
@@ -72,7 +63,7 @@ def scan_table(
             f"{len(groups)} group(s) of rows with identical features but different labels "
             f"(a classic sign of label noise), e.g. {shown}"
         )
-    return ScanOutcome(scan_frame(fit, labels, ids), fit, roles, names)
+    return ScanOutcome(scan_frame(fit, labels, ids), fit, roles, data.feature_names)
 
 
 def scan_frame(fit: FitResult, labels: np.ndarray, ids: np.ndarray) -> pd.DataFrame:

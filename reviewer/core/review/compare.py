@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from reviewer.core.model.fitting import FitResult
-from reviewer.core.values import SUPPORTS, ZONES
+from reviewer.core.values import SUPPORTS, ZONES, FitSettings, display_name
 
 CAUTION = (
     "Accuracy here is measured against the labels as edited, which flatters the edits; "
@@ -23,35 +23,75 @@ CAUTION = (
 
 @dataclass
 class Comparison:
+    """Before (the baseline: labels as loaded) against after (the edited labels, fitted with
+    the baseline's settings, so the difference is the edits alone).
+
+    When the latest fit used other settings, ``metrics_new`` and ``new_settings`` describe
+    it: the edits and the new settings together.
+    """
+
     metrics: dict[str, tuple[Any, Any]]  # name -> (before, after)
-    changed_rows: pd.DataFrame  # rows whose zone changed
+    changed_rows: pd.DataFrame  # rows whose zone changed between before and after
+    before_settings: FitSettings
+    after_settings: FitSettings
+    metrics_new: dict[str, Any] | None = None  # name -> value for the latest fit
+    new_settings: FitSettings | None = None
+
+    @property
+    def settings_changed(self) -> bool:
+        return self.new_settings is not None
 
 
-def compare_fits(before: FitResult, after: FitResult) -> Comparison:
-    sb, sa = before.summary, after.summary
-    metrics: dict[str, tuple[Any, Any]] = {
-        "rows fitted": (sb.n_fitted, sa.n_fitted),
-        "held-out accuracy": (sb.heldout_accuracy, sa.heldout_accuracy),
-        "held-out balanced accuracy": (sb.heldout_balanced_accuracy, sa.heldout_balanced_accuracy),
-        "training accuracy": (sb.training_accuracy, sa.training_accuracy),
-        "sum of slacks": (sb.sum_slack, sa.sum_slack),
+def fit_metrics(fit: FitResult, baseline: FitResult | None = None) -> dict[str, Any]:
+    """The numbers the comparison shows for one fit (model's labels counted against
+    ``baseline``'s when given)."""
+    s = fit.summary
+    out: dict[str, Any] = {
+        "rows fitted": s.n_fitted,
+        "held-out accuracy": s.heldout_accuracy,
+        "held-out balanced accuracy": s.heldout_balanced_accuracy,
+        "training accuracy": s.training_accuracy,
+        "sum of slacks": s.sum_slack,
     }
     for z in ZONES:
-        metrics[f"rows {z}"] = (sb.zone_counts.get(z), sa.zone_counts.get(z))
-    for s in SUPPORTS:
-        metrics[f"rows {s}"] = (sb.support_counts.get(s), sa.support_counts.get(s))
-    if sb.margin_width is not None or sa.margin_width is not None:
-        metrics["margin width 2/||w||"] = (sb.margin_width, sa.margin_width)
+        out[f"rows {display_name(z)}"] = s.zone_counts.get(z)
+    for k in SUPPORTS:
+        out[f"rows {display_name(k)}"] = s.support_counts.get(k)
+    if s.margin_width is not None:
+        out["margin width 2/||w||"] = s.margin_width
+    if baseline is not None:
+        mine = fit.rows["model_label"].to_numpy()
+        theirs = baseline.rows["model_label"].to_numpy()
+        out["rows whose model's label changed"] = int(
+            np.sum(np.fromiter((a != b for a, b in zip(theirs, mine, strict=True)), dtype=bool))
+        )
+    return out
+
+
+def compare_fits(
+    before: FitResult,
+    after: FitResult,
+    *,
+    new: FitResult | None = None,
+    labels: np.ndarray | None = None,
+) -> Comparison:
+    """``after`` should be the edited labels fitted with ``before``'s settings; ``new`` the
+    latest fit when its settings differ. ``labels`` (the current ones) go into the changed
+    rows table."""
+    mb = fit_metrics(before)
+    mb["rows whose model's label changed"] = 0
+    ma = fit_metrics(after, before)
+    metrics = {k: (mb.get(k), ma.get(k)) for k in dict.fromkeys([*mb, *ma])}
     sug_b = before.rows["model_label"].to_numpy()
     sug_a = after.rows["model_label"].to_numpy()
-    changed_suggestion = int(np.sum(np.array([a != b for a, b in zip(sug_b, sug_a, strict=True)])))
-    metrics["rows whose model's label changed"] = (0, changed_suggestion)
     zb = before.rows["zone"].to_numpy()
     za = after.rows["zone"].to_numpy()
     moved = np.flatnonzero((zb != za) & (zb != "") & (za != ""))
-    changed = pd.DataFrame(
+    table: dict[str, Any] = {"row": moved}
+    if labels is not None:
+        table["label"] = np.asarray(labels, dtype=object)[moved]
+    table.update(
         {
-            "row": moved,
             "zone_before": zb[moved],
             "zone_after": za[moved],
             "slack_before": before.rows["slack"].to_numpy()[moved],
@@ -60,7 +100,14 @@ def compare_fits(before: FitResult, after: FitResult) -> Comparison:
             "model_label_after": sug_a[moved],
         }
     )
-    return Comparison(metrics=metrics, changed_rows=changed)
+    return Comparison(
+        metrics=metrics,
+        changed_rows=pd.DataFrame(table),
+        before_settings=before.settings,
+        after_settings=after.settings,
+        metrics_new=None if new is None else fit_metrics(new, before),
+        new_settings=None if new is None else new.settings,
+    )
 
 
 def score_on_reference(

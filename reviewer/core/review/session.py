@@ -1,40 +1,30 @@
-"""ReviewSession: the single door through which the window and the command line work.
+"""ReviewSession: the one object through which the window and the command line review a table.
 
 It owns the loaded table, the column roles, the fit settings, the edit log (kept in a
-SQLite session file, one commit per action) and the fits. Long computations are split in
-two: ``compute_fit`` is pure and may run on a worker thread; ``apply_fit`` stores the
-result and must run on the thread that opened the session (SQLite connections are not
-shared between threads).
+SQLite session file, one commit per action) and the fits. Opening lives in `opening.py`,
+the fits in `fits.py`, the hand-over (export) in `handover.py`; the methods here are the
+session's whole surface.
 """
 
 from __future__ import annotations
 
 import dataclasses
-import getpass
 import os
+import threading
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from reviewer._version import __version__
 from reviewer.core import values
-from reviewer.core.data.features import feature_matrix
-from reviewer.core.data.loading import LoadedTable, label_strings, load_table, sha256_of
-from reviewer.core.data.roles import (
-    ColumnRoles,
-    guess_id_column,
-    guess_label_column,
-    infer_kind,
-    infer_roles,
-)
-from reviewer.core.errors import InputError, SessionError, SourceChangedError
-from reviewer.core.model.fitting import FitResult, fit_margins
-from reviewer.core.model.scan import row_ids
-from reviewer.core.progress import ProgressFn, Reporter
+from reviewer.core.data.dataset import Dataset
+from reviewer.core.errors import SessionError
+from reviewer.core.model.fitting import FitResult
+from reviewer.core.progress import ProgressFn
+from reviewer.core.review import fits, handover, opening
+from reviewer.core.review.compare import Comparison, compare_fits
 from reviewer.core.review.context import (
     ClassNorms,
     class_norms,
@@ -43,58 +33,30 @@ from reviewer.core.review.context import (
     projection_2d,
 )
 from reviewer.core.review.editlog import Event, LabelState
+from reviewer.core.review.fits import FitJob, FitPair
+from reviewer.core.review.handover import export_session
+from reviewer.core.review.opening import (
+    APP_NAME,
+    SESSION_SUFFIX,
+    TablePreview,
+    default_reviewer,
+    default_session_path,
+)
 from reviewer.core.review.sessionfile import SessionFile
-from reviewer.core.values import ROW_COLUMNS, FitSettings, FitSummary
+from reviewer.core.values import FitSettings
 
-SESSION_SUFFIX = ".review.sqlite"
-APP_NAME = "margin-reviewer"
+__all__ = [
+    "APP_NAME",
+    "SESSION_SUFFIX",
+    "FitJob",
+    "ReviewSession",
+    "TablePreview",
+    "default_reviewer",
+    "default_session_path",
+    "export_session",
+]
+
 Listener = Callable[[str, Any], None]
-
-
-def default_reviewer() -> str:
-    try:
-        return getpass.getuser() or "reviewer"
-    except Exception:  # no login name in some containers
-        return "reviewer"
-
-
-def default_session_path(data_path: Path, sha256: str) -> Path:
-    """Beside the data file as ``<name>.review.sqlite``; the user data folder when that
-    folder is not writable."""
-    data_path = Path(data_path).resolve()
-    beside = data_path.with_name(data_path.name + SESSION_SUFFIX)
-    if beside.exists() or os.access(data_path.parent, os.W_OK):
-        return beside
-    from platformdirs import user_data_dir
-
-    folder = Path(user_data_dir(APP_NAME, appauthor=False)) / "sessions"
-    folder.mkdir(parents=True, exist_ok=True)
-    return folder / f"{data_path.stem}-{sha256[:12]}{SESSION_SUFFIX}"
-
-
-@dataclass
-class TablePreview:
-    """What the column-roles dialog shows before a session is opened."""
-
-    source: Any
-    head: pd.DataFrame
-    columns: list[str]
-    guessed_label: str | None
-    guessed_id: str | None
-    kinds: dict[str, tuple[str, str]]  # column -> (kind, reason)
-    remembered: dict[str, Any] | None  # roles saved in an existing session file
-
-
-@dataclass
-class FitJob:
-    """A snapshot of everything a fit needs, so it can run on a worker thread."""
-
-    X: np.ndarray
-    labels: np.ndarray
-    excluded: np.ndarray
-    settings: FitSettings
-    last_seq: int
-    baseline: bool
 
 
 class ReviewSession:
@@ -102,27 +64,24 @@ class ReviewSession:
 
     def __init__(
         self,
-        loaded: LoadedTable,
-        roles: ColumnRoles,
+        dataset: Dataset,
         file: SessionFile,
         reviewer: str,
         settings: FitSettings,
-        X: np.ndarray,
-        feature_names: list[str],
         warnings: list[str],
     ) -> None:
-        self.loaded = loaded
-        self.roles = roles
+        self.loaded = dataset.loaded
+        self.roles = dataset.roles
         self.file = file
         self.reviewer = reviewer
         self.settings = settings
-        self.X = X
-        self.feature_names = feature_names
+        self.X = dataset.X
+        self.feature_names = dataset.feature_names
         self.warnings = warnings
-        self.ids = row_ids(loaded.frame, roles.id)
-        self.source_labels = label_strings(loaded.frame[roles.label])
+        self.ids = dataset.ids
+        self.source_labels = dataset.labels
         events = file.events()
-        self._by_id = roles.id is not None
+        self._by_id = self.roles.id is not None
         self._where = {str(v): i for i, v in enumerate(self.ids)} if self._by_id else {}
         # Ids the log names that the table no longer has become "ghost" rows after the
         # table, so every event (and every undo of it) still replays; they are never shown.
@@ -151,9 +110,12 @@ class ReviewSession:
         self.latest: FitResult | None = None
         self.baseline: FitResult | None = None
         self.latest_seq: int | None = None
+        self.edits_fit: FitResult | None = None
+        """The edited labels fitted with the baseline's settings, when the latest fit used
+        other settings (else the latest fit is that fit, and this is None)."""
         self._norms: ClassNorms | None = None
         self._projection: tuple[np.ndarray, np.ndarray] | None = None
-        self._load_saved_fits()
+        self.warnings.extend(fits.load_saved_fits(self))
 
     # ---- opening ---------------------------------------------------------------------------
     @staticmethod
@@ -161,27 +123,7 @@ class ReviewSession:
         data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None
     ) -> TablePreview:
         """Load a file and guess its roles, for the column-roles dialog."""
-        loaded = load_table(data_path, progress=progress)
-        frame = loaded.frame
-        label = guess_label_column(frame)
-        ident = guess_id_column(frame, label)
-        kinds = {c: infer_kind(frame[c]) for c in frame.columns}
-        remembered = None
-        path = default_session_path(loaded.source.path, loaded.source.sha256)
-        if path.exists():
-            try:
-                with SessionFile.open(path, read_only=True) as f:
-                    meta = f.meta
-                remembered = {
-                    "label": meta.get("label_column"),
-                    "id": meta.get("id_column"),
-                    "roles": meta.get("roles"),
-                }
-            except SessionError:
-                remembered = None
-        return TablePreview(
-            loaded.source, frame.head(rows), list(frame.columns), label, ident, kinds, remembered
-        )
+        return opening.preview_table(data_path, rows=rows, progress=progress)
 
     @classmethod
     def open(
@@ -196,7 +138,7 @@ class ReviewSession:
         read_only: bool = False,
         reattach: bool = False,
         progress: ProgressFn | None = None,
-        cancel=None,
+        cancel: threading.Event | None = None,
     ) -> ReviewSession:
         """Open (or start) the review of ``data_path``.
 
@@ -205,88 +147,19 @@ class ReviewSession:
         raised unless ``read_only`` (look only) or ``reattach`` (match rows by the id
         column; rows that no longer exist are reported in ``warnings``).
         """
-        report = Reporter(progress, cancel)
-        loaded = load_table(data_path, progress=report.slice(0.0, 0.6), cancel=cancel)
-        src = loaded.source
-        path = Path(session_path) if session_path else default_session_path(src.path, src.sha256)
-        warnings: list[str] = []
-        if path.exists():
-            file = SessionFile.open(path, read_only=read_only)
-            try:
-                meta = file.meta
-                label_col = meta.get("label_column")
-                id_col = meta.get("id_column")
-                if label and label != label_col:
-                    raise SessionError(
-                        f"session {path} reviews label column {label_col!r}, not {label!r}; "
-                        "choose another session file to review a different column"
-                    )
-                roles = ColumnRoles.from_dict(meta["roles"]) if meta.get("roles") else None
-                if roles is None or any(
-                    c not in loaded.frame.columns for c in [roles.label, *roles.features]
-                ):
-                    roles = infer_roles(loaded.frame, label_col, id_col, overrides)
-                settings = FitSettings.from_dict(meta.get("settings") or {})
-                changed = meta.get("source_sha256") != src.sha256
-                if changed and not (read_only or reattach):
-                    raise SourceChangedError(
-                        f"{src.path} changed since session {path} began (SHA-256 differs). "
-                        "Open it read-only to look, or re-attach by the id column"
-                        + (
-                            f" {id_col!r}"
-                            if id_col
-                            else " (this table has none, so only read-only)"
-                        )
-                    )
-                if changed and reattach:
-                    if not id_col:
-                        raise SourceChangedError(
-                            f"{src.path} changed and session {path} has no id column "
-                            "to re-attach by; "
-                            "open it read-only instead"
-                        )
-                    if file.read_only:
-                        raise SessionError(f"cannot re-attach: {file.read_only_reason}")
-                    file.set_meta("source_sha256", src.sha256)
-                    file.set_meta("source_path", str(src.path))
-                if changed and read_only:
-                    warnings.append(f"{src.path} changed since the session began; opened read-only")
-                if file.read_only_reason:
-                    warnings.append(file.read_only_reason)
-            except BaseException:
-                file.close()
-                raise
-        else:
-            if read_only:
-                raise SessionError(f"no session file at {path} to open read-only")
-            if label is None:
-                raise InputError(f"{src.path}: choose the label column (--label)")
-            roles = infer_roles(loaded.frame, label, id_column, overrides)
-            settings = FitSettings()
-            file = SessionFile.create(
-                path,
-                {
-                    "source_path": str(src.path),
-                    "source_sha256": src.sha256,
-                    "label_column": roles.label,
-                    "id_column": roles.id,
-                    "roles": roles.to_dict(),
-                    "settings": settings.to_dict(),
-                    "reviewer": reviewer or default_reviewer(),
-                    "app_version": __version__,
-                },
-            )
-        try:
-            report(0.65, "building features")
-            X, names = feature_matrix(loaded.frame, roles)
-            session = cls(
-                loaded, roles, file, reviewer or default_reviewer(), settings, X, names, warnings
-            )
-        except BaseException:
-            file.close()
-            raise
-        report(1.0, "session open")
-        return session
+        return opening.open_session(
+            cls,
+            data_path,
+            label=label,
+            id_column=id_column,
+            session_path=session_path,
+            overrides=overrides,
+            reviewer=reviewer,
+            read_only=read_only,
+            reattach=reattach,
+            progress=progress,
+            cancel=cancel,
+        )
 
     def close(self) -> None:
         self.file.close()
@@ -509,79 +382,54 @@ class ReviewSession:
             self.file.set_meta("settings", settings.to_dict())
         self._announce("settings", settings)
 
+    @property
+    def last_seq(self) -> int:
+        """Seq of the newest event in the log (0 when empty)."""
+        return self._state.last_seq
+
     def prepare_fit(self, settings: FitSettings | None = None, *, baseline: bool = False) -> FitJob:
         """Snapshot labels and exclusions (on the session's thread) for :meth:`compute_fit`."""
-        settings = (settings or self.settings).validate()
-        if baseline:
-            labels, excluded = self.source_labels.copy(), np.zeros(self.n_rows, dtype=bool)
-        else:
-            labels, excluded = self.labels.copy(), self.excluded.copy()
-        return FitJob(self.X, labels, excluded, settings, self._state.last_seq, baseline)
+        return fits.prepare_fit(self, settings, baseline=baseline)
 
     @staticmethod
-    def compute_fit(job: FitJob, progress: ProgressFn | None = None, cancel=None) -> FitResult:
+    def compute_fit(
+        job: FitJob, progress: ProgressFn | None = None, cancel: threading.Event | None = None
+    ) -> FitPair:
         """Pure: safe to run on a worker thread. Raises Cancelled if ``cancel`` is set."""
-        return fit_margins(
-            job.X, job.labels, job.settings, excluded=job.excluded, progress=progress, cancel=cancel
-        )
+        return fits.compute_fit(job, progress, cancel)
 
-    def apply_fit(self, job: FitJob, result: FitResult) -> None:
+    def apply_fit(self, job: FitJob, result: FitPair | FitResult) -> None:
         """Keep a finished fit as the latest (or the baseline) and save its per-row results."""
-        slot = "baseline" if job.baseline else "latest"
-        if not self.read_only:
-            self.file.save_fit(
-                slot, result.settings.to_dict(), _jsonable(result.summary.to_dict()), result.rows
-            )
-        if job.baseline:
-            self.baseline = result
-        else:
-            self.latest = result
-            self.latest_seq = job.last_seq
-            if self.baseline is None and job.last_seq == 0:
-                self.baseline = result
-                if not self.read_only:
-                    self.file.save_fit(
-                        "baseline",
-                        result.settings.to_dict(),
-                        _jsonable(result.summary.to_dict()),
-                        result.rows,
-                    )
+        fits.apply_fit(self, job, result)
         self._norms = None
-        self._announce("fitted", result)
+        self._announce("fitted", self.baseline if job.baseline else self.latest)
 
     def fit(
-        self, settings: FitSettings | None = None, progress: ProgressFn | None = None, cancel=None
+        self,
+        settings: FitSettings | None = None,
+        progress: ProgressFn | None = None,
+        cancel: threading.Event | None = None,
     ) -> FitResult:
         """Fit on the current labels and keep the result (the command line's one-call path)."""
         if settings is not None:
             self.set_settings(settings)
         job = self.prepare_fit()
-        result = self.compute_fit(job, progress, cancel)
-        self.apply_fit(job, result)
-        return result
+        pair = self.compute_fit(job, progress, cancel)
+        self.apply_fit(job, pair)
+        return pair.result
 
-    def _load_saved_fits(self) -> None:
-        for slot in ("baseline", "latest"):
-            record = self.file.load_fit(slot)
-            if (
-                record is None
-                or len(record.rows) != self.n_rows
-                or list(record.rows.columns) != list(ROW_COLUMNS)
-            ):
-                continue
-            rows = record.rows.copy()
-            for col in ("zone", "support", "model_label"):
-                rows[col] = rows[col].astype(object).where(rows[col].notna(), None)
-            result = FitResult(
-                rows=rows,
-                settings=FitSettings.from_dict(record.settings),
-                summary=FitSummary.from_dict(record.summary),
-            )
-            if slot == "baseline":
-                self.baseline = result
-            else:
-                self.latest = result
-                self.latest_seq = record.last_seq
+    def comparison(self) -> Comparison | None:
+        """Before (labels as loaded) against after (the edits alone, with the baseline's
+        settings); the latest fit beside them when its settings differ. None before a fit."""
+        if self.baseline is None or self.latest is None:
+            return None
+        if self.edits_fit is not None:
+            return compare_fits(self.baseline, self.edits_fit, new=self.latest, labels=self.labels)
+        if self.latest.settings.same_fit_as(self.baseline.settings):
+            return compare_fits(self.baseline, self.latest, labels=self.labels)
+        # The latest fit has other settings and no edits-alone fit is at hand (it was saved
+        # by an older version, or dropped): show it as the edits and the new settings.
+        return compare_fits(self.baseline, self.baseline, new=self.latest, labels=self.labels)
 
     # ---- context for one row -------------------------------------------------------------------
     def neighbours(self, row: int, k: int = 6) -> pd.DataFrame:
@@ -631,114 +479,16 @@ class ReviewSession:
     ) -> list[Path]:
         """Cleaned table in the source's format, plus an optional audit log and HTML summary.
 
-        ``images`` (caption -> PNG bytes, drawn by the window) are embedded in the summary."""
-        from reviewer.core.output import export as ex
-
-        src = self.loaded.source
-        if sha256_of(src.path) != src.sha256:
-            raise SourceChangedError(
-                f"{src.path} changed on disk since it was opened; reopen it before exporting"
-            )
-        protect = [src.path, self.session_path]
-        written = [
-            ex.export_cleaned(
-                src,
-                self.roles.label,
-                list(self.labels),
-                self.excluded,
-                out,
-                source_labels=list(self.source_labels),
-                keep_excluded=keep_excluded,
-                overwrite=overwrite,
-            )
-        ]
-        events = [e.to_dict() for e in self.events()]
-        if audit:
-            writer = (
-                ex.write_audit_jsonl
-                if str(audit).lower().endswith((".jsonl", ".json"))
-                else ex.write_audit_csv
-            )
-            written.append(writer(events, audit, overwrite=overwrite, protect=protect))
-        if report:
-            summary = self.summary_for_report(written)
-            if images:
-                summary["images"] = dict(images)
-            written.append(
-                ex.write_summary_html(summary, report, overwrite=overwrite, protect=protect)
-            )
-        return written
+        ``images`` (caption -> PNG bytes) are embedded in the summary."""
+        return handover.export(
+            self,
+            out,
+            audit=audit,
+            report=report,
+            keep_excluded=keep_excluded,
+            overwrite=overwrite,
+            images=images,
+        )
 
     def summary_for_report(self, written: Sequence[Path] = ()) -> dict[str, Any]:
-        events = self.events()
-        by_action: dict[str, int] = {}
-        by_reason: dict[str, int] = {}
-        for e in events:
-            by_action[e.action] = by_action.get(e.action, 0) + 1
-            if e.reason:
-                by_reason[e.reason] = by_reason.get(e.reason, 0) + 1
-        summary: dict[str, Any] = {
-            "source_path": str(self.loaded.source.path),
-            "source_sha256": self.loaded.source.sha256,
-            "reviewer": self.reviewer,
-            "label_column": self.roles.label,
-            "settings": (self.latest.settings if self.latest else self.settings).to_dict(),
-            "counts_by_action": by_action,
-            "counts_by_reason": by_reason,
-        }
-        if written:
-            summary["cleaned_path"] = str(written[0])
-        from reviewer.core.review.compare import compare_fits
-
-        if self.baseline is not None and self.latest is not None:
-            comparison = compare_fits(self.baseline, self.latest)
-            summary["metrics"] = comparison.metrics
-            summary["changed_rows"] = [
-                {"row_id": str(self.ids[r]), **{k: v for k, v in ch.items() if k != "row"}}
-                for r, ch in zip(
-                    comparison.changed_rows["row"],
-                    comparison.changed_rows.to_dict("records"),
-                    strict=True,
-                )
-            ][:500]
-        return summary
-
-
-def _jsonable(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, float) and not np.isfinite(value):
-        return None
-    return value
-
-
-def export_session(
-    session_path: Path,
-    *,
-    out: Path,
-    audit: Path | None = None,
-    report: Path | None = None,
-    keep_excluded: bool = False,
-    overwrite: bool = False,
-) -> list[Path]:
-    """The command line's export: open the session read-only next to its source file."""
-    if not Path(session_path).is_file():
-        raise SessionError(f"session file {session_path} not found")
-    with SessionFile.open(session_path, read_only=True) as f:
-        meta = f.meta
-    source = meta.get("source_path")
-    if not source or not Path(source).is_file():
-        raise SessionError(f"the data file of session {session_path} is missing: {source}")
-    with ReviewSession.open(source, session_path=session_path, read_only=True) as session:
-        if session.warnings and any("changed" in w for w in session.warnings):
-            raise SourceChangedError(
-                f"{source} changed since session {session_path} began; "
-                "re-attach it in the window first"
-            )
-        return session.export(
-            out, audit=audit, report=report, keep_excluded=keep_excluded, overwrite=overwrite
-        )
+        return handover.summary_for_report(self, written)

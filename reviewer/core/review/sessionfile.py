@@ -35,7 +35,7 @@ from reviewer.core.review.editlog import Event, read_legacy_names, utc_now
 from reviewer.core.values import LEGACY_NAMES
 
 APPLICATION_ID = 0x4D524731  # "MRG1": marks a SQLite file as one of ours
-SLOTS = ("baseline", "latest")
+SLOTS = ("baseline", "latest", "edits")
 META_KEYS = (
     "source_path",
     "source_sha256",
@@ -92,7 +92,30 @@ def _migrate_0_to_1(conn: sqlite3.Connection) -> None:
             conn.execute(statement)
 
 
-MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {1: _migrate_0_to_1}
+def _migrate_1_to_2(conn: sqlite3.Connection) -> None:
+    # A third fit slot, "edits": the edited labels fitted with the baseline's settings.
+    # SQLite cannot change a CHECK constraint in place, so the table is copied.
+    for statement in (
+        """CREATE TABLE fit_rows_2 (
+            slot TEXT PRIMARY KEY CHECK (slot IN ('baseline', 'latest', 'edits')),
+            fit_id INTEGER NOT NULL REFERENCES fits(fit_id),
+            format TEXT NOT NULL,
+            data BLOB NOT NULL
+        )""",
+        "INSERT INTO fit_rows_2 (slot, fit_id, format, data) "
+        "SELECT slot, fit_id, format, data FROM fit_rows",
+        "DROP TABLE fit_rows",
+        "ALTER TABLE fit_rows_2 RENAME TO fit_rows",
+    ):
+        conn.execute(statement)
+
+
+MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
+    1: _migrate_0_to_1,
+    2: _migrate_1_to_2,
+}
+READABLE_FROM = 1
+"""The oldest schema this code can read without upgrading it (read-only opens need that)."""
 """Schema version -> function that brings a file from version-1 up to it (run in a transaction)."""
 
 
@@ -260,12 +283,14 @@ class SessionFile:
                     f"session file {path} has schema version {version}; this version of the "
                     f"program reads up to {schema_version()}. Use a newer version."
                 )
-            if version < schema_version():
-                if read_only:
+            if version < schema_version() and read_only:
+                # Read as it is: every schema from READABLE_FROM on reads the same way.
+                if version < READABLE_FROM:
                     raise SessionError(
                         f"session file {path} has old schema version {version} and is open "
                         "read-only, so it cannot be upgraded; open it once for writing"
                     )
+            elif version < schema_version():
                 conn.execute("BEGIN IMMEDIATE")
                 try:
                     cls._migrate(conn, version, path)
@@ -524,15 +549,23 @@ class SessionFile:
         import pandas as pd  # deferred: opening a session to append edits needs no pandas
 
         fit_id, time, last, settings, summary, data = row
+        try:
+            rows = pd.read_parquet(io.BytesIO(data))
+            settings_dict, summary_dict = json.loads(settings), json.loads(summary)
+        except Exception as exc:  # Arrow, Parquet and JSON each fail in their own words
+            raise SessionError(
+                f"the saved {slot} fit in {self.path} is damaged ({type(exc).__name__}: "
+                f"{' '.join(str(exc).split())[:200]})"
+            ) from exc
         return FitRecord(
             fit_id,
             slot,
             time,
             last,
-            json.loads(settings),
-            json.loads(summary),
+            settings_dict,
+            summary_dict,
             # 0.1 files called the model's label "suggested_label".
-            pd.read_parquet(io.BytesIO(data)).rename(columns={"suggested_label": "model_label"}),
+            rows.rename(columns={"suggested_label": "model_label"}),
         )
 
     def fit_history(self) -> list[FitRecord]:

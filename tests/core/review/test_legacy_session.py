@@ -18,6 +18,9 @@ def test_a_version_01_session_replays_with_the_new_names(tmp_path: Path) -> None
     shutil.copy(FIXTURES / "lots_v1.csv", data)
     session_file = tmp_path / "lots_v1.review.sqlite"
     shutil.copy(FIXTURES / "lots_v1_session.sqlite", session_file)
+    # Read-only first, as `export` opens it: a 0.1 file (schema 1) reads without an upgrade.
+    with ReviewSession.open(data, session_path=session_file, read_only=True) as s:
+        assert [REVIEW_NAMES[c] for c in s.review[:2]] == ["confirmed", "confirmed"]
     with ReviewSession.open(data, session_path=session_file) as s:
         events = s.events()
         assert [e.action for e in events] == [

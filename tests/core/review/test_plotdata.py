@@ -160,12 +160,12 @@ def test_compare_counts_and_metrics_table_match_a_recount() -> None:
     comp = compare_fits(before, after)
     zb, za = before.rows["zone"].to_numpy(), after.rows["zone"].to_numpy()
     np.testing.assert_array_equal(comp.changed_rows["row"], np.flatnonzero(zb != za))
-    assert comp.metrics["rows wrong_side"] == (
+    assert comp.metrics["rows wrong side"] == (
         int(np.sum(zb == "wrong_side")),
         int(np.sum(za == "wrong_side")),
     )
     table = plotdata.metrics_table(comp.metrics).set_index("metric")
-    line = table.loc["rows wrong_side"]
+    line = table.loc["rows wrong side"]
     assert line["change"] == np.sum(za == "wrong_side") - np.sum(zb == "wrong_side")
     assert table.loc["held-out accuracy", "after"] == after.summary.heldout_accuracy
 

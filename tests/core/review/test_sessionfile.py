@@ -186,21 +186,23 @@ def test_newer_schema_is_refused_with_versions_named(session):
     conn = sqlite3.connect(session)
     conn.execute("PRAGMA user_version = 99")
     conn.close()
-    _refused_untouched(session, "schema version 99.*reads up to 1")
+    _refused_untouched(session, "schema version 99.*reads up to 2")
 
 
 def test_older_schema_is_upgraded_on_open_for_writing(session, monkeypatch):
     def add_labels_table(conn: sqlite3.Connection) -> None:
         conn.execute("CREATE TABLE class_names (name TEXT)")
 
-    # Pretend this program knows a schema 2; the file on disk is version 1.
-    monkeypatch.setitem(sessionfile.MIGRATIONS, 2, add_labels_table)
+    # Pretend this program knows a schema 3 that older files cannot be read as; the file
+    # on disk is version 2.
+    monkeypatch.setitem(sessionfile.MIGRATIONS, 3, add_labels_table)
+    monkeypatch.setattr(sessionfile, "READABLE_FROM", 3)
     with pytest.raises(SessionError, match="cannot be upgraded"):
         SessionFile.open(session, read_only=True)
     with SessionFile.open(session) as sf:
         assert len(sf.events()) == 3
     conn = sqlite3.connect(session)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == 2
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == 3
     assert conn.execute("SELECT count(*) FROM class_names").fetchone()[0] == 0
     conn.close()
 
@@ -210,11 +212,11 @@ def test_failed_upgrade_leaves_the_old_version(session, monkeypatch):
         conn.execute("CREATE TABLE half_done (x)")
         raise RuntimeError("upgrade step failed")
 
-    monkeypatch.setitem(sessionfile.MIGRATIONS, 2, broken)
+    monkeypatch.setitem(sessionfile.MIGRATIONS, 3, broken)
     with pytest.raises(RuntimeError):
         SessionFile.open(session)
     conn = sqlite3.connect(session)
-    assert conn.execute("PRAGMA user_version").fetchone()[0] == 1
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == 2
     names = {r[0] for r in conn.execute("SELECT name FROM sqlite_master")}
     assert "half_done" not in names
     conn.close()

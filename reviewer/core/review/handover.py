@@ -1,0 +1,130 @@
+"""Handing the review over: the cleaned table, the audit log and the report, from a session."""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from reviewer.core.data.loading import sha256_of
+from reviewer.core.errors import SessionError, SourceChangedError
+from reviewer.core.review.sessionfile import SessionFile
+
+if TYPE_CHECKING:
+    from reviewer.core.review.session import ReviewSession
+
+
+def export(
+    session: ReviewSession,
+    out: str | os.PathLike[str],
+    *,
+    audit: str | os.PathLike[str] | None = None,
+    report: str | os.PathLike[str] | None = None,
+    keep_excluded: bool = False,
+    overwrite: bool = False,
+    images: Mapping[str, bytes] | None = None,
+) -> list[Path]:
+    """Cleaned table in the source's format, plus an optional audit log and HTML summary.
+
+    ``images`` (caption -> PNG bytes, drawn by the window) are embedded in the summary."""
+    from reviewer.core.output import export as ex
+
+    src = session.loaded.source
+    if sha256_of(src.path) != src.sha256:
+        raise SourceChangedError(
+            f"{src.path} changed on disk since it was opened; reopen it before exporting"
+        )
+    protect = [src.path, session.session_path]
+    written = [
+        ex.export_cleaned(
+            src,
+            session.roles.label,
+            list(session.labels),
+            session.excluded,
+            out,
+            source_labels=list(session.source_labels),
+            keep_excluded=keep_excluded,
+            overwrite=overwrite,
+        )
+    ]
+    events = [e.to_dict() for e in session.events()]
+    if audit:
+        writer = (
+            ex.write_audit_jsonl
+            if str(audit).lower().endswith((".jsonl", ".json"))
+            else ex.write_audit_csv
+        )
+        written.append(writer(events, audit, overwrite=overwrite, protect=protect))
+    if report:
+        summary = summary_for_report(session, written)
+        if images:
+            summary["images"] = dict(images)
+        written.append(ex.write_summary_html(summary, report, overwrite=overwrite, protect=protect))
+    return written
+
+
+def summary_for_report(session: ReviewSession, written: Sequence[Path] = ()) -> dict[str, Any]:
+    events = session.events()
+    by_action: dict[str, int] = {}
+    by_reason: dict[str, int] = {}
+    for e in events:
+        by_action[e.action] = by_action.get(e.action, 0) + 1
+        if e.reason:
+            by_reason[e.reason] = by_reason.get(e.reason, 0) + 1
+    summary: dict[str, Any] = {
+        "source_path": str(session.loaded.source.path),
+        "source_sha256": session.loaded.source.sha256,
+        "reviewer": session.reviewer,
+        "label_column": session.roles.label,
+        "settings": (session.latest.settings if session.latest else session.settings).to_dict(),
+        "fit_out_of_date": session.latest is not None and not session.fit_is_current,
+        "counts_by_action": by_action,
+        "counts_by_reason": by_reason,
+    }
+    if written:
+        summary["cleaned_path"] = str(written[0])
+    comparison = session.comparison()
+    if comparison is not None:
+        summary["metrics"] = comparison.metrics
+        if comparison.metrics_new is not None:
+            summary["metrics_new_settings"] = comparison.metrics_new
+        summary["changed_rows"] = [
+            {"row_id": str(session.ids[r]), **{k: v for k, v in ch.items() if k != "row"}}
+            for r, ch in zip(
+                comparison.changed_rows["row"],
+                comparison.changed_rows.to_dict("records"),
+                strict=True,
+            )
+        ][:500]
+    return summary
+
+
+def export_session(
+    session_path: Path,
+    *,
+    out: Path,
+    audit: Path | None = None,
+    report: Path | None = None,
+    keep_excluded: bool = False,
+    overwrite: bool = False,
+) -> list[Path]:
+    """The command line's export: open the session read-only next to its source file."""
+    if not Path(session_path).is_file():
+        raise SessionError(f"session file {session_path} not found")
+    with SessionFile.open(session_path, read_only=True) as f:
+        meta = f.meta
+    source = meta.get("source_path")
+    if not source or not Path(source).is_file():
+        raise SessionError(f"the data file of session {session_path} is missing: {source}")
+    from reviewer.core.review.session import ReviewSession
+
+    with ReviewSession.open(source, session_path=session_path, read_only=True) as session:
+        if session.warnings and any("changed" in w for w in session.warnings):
+            raise SourceChangedError(
+                f"{source} changed since session {session_path} began; "
+                "re-attach it in the window first"
+            )
+        return session.export(
+            out, audit=audit, report=report, keep_excluded=keep_excluded, overwrite=overwrite
+        )
