@@ -38,7 +38,7 @@ from reviewer.core import door
 from reviewer.core.door import COMPARISON_CAUTION as CAUTION
 from reviewer.core.door import Comparison, ReviewSession
 from reviewer.core.errors import ReviewerError
-from reviewer.core.values import display_name
+from reviewer.core.values import FitSettings, display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.c_curve import CCurvePlot
@@ -58,6 +58,30 @@ def _fmt(value: Any, signed: bool = False) -> str:
     if isinstance(value, (float, np.floating)):
         return f"{float(value):+.4f}" if signed else f"{float(value):.4f}"
     return str(value)
+
+
+def _is_number(v: Any) -> bool:
+    return (
+        isinstance(v, (int, float, np.integer, np.floating))
+        and not isinstance(v, (bool, np.bool_))
+        and bool(np.isfinite(float(v)))
+    )
+
+
+def settings_text(st: FitSettings) -> str:
+    """Resolved fit settings in a few words: kernel, C, gamma, class weights, folds, seed."""
+    parts = [st.kernel]
+    if st.C is not None:
+        parts.append(f"C {float(st.C):.4g}")
+    if st.kernel in ("rbf", "poly"):
+        gamma = st.gamma_value if st.gamma_value is not None else st.gamma
+        parts.append(f"gamma {gamma:.4g}" if isinstance(gamma, (int, float)) else f"gamma {gamma}")
+    if st.kernel == "poly":
+        parts.append(f"degree {st.degree}")
+    if st.class_weight:
+        parts.append(f"{st.class_weight} weights")
+    parts.append(f"{st.folds} folds, seed {st.seed}")
+    return ", ".join(parts)
 
 
 def metric_name(name: str) -> str:
@@ -158,17 +182,49 @@ class CompareView(QWidget):
         assert comp is not None  # both fits exist (checked above)
         self.comparison = comp
         self.table = door.metrics_table(comp.metrics)
-        self.metrics.setRowCount(len(self.table))
-        for i, line in enumerate(self.table.itertuples(index=False)):
+        new = comp.metrics_new
+        # Before | after (the edits alone, baseline's settings) | change, and when the latest
+        # fit used other settings: the edits and new settings | change from before.
+        headers = ["metric", "before", "after: edits alone", "change"]
+        if new is not None:
+            headers += ["edits and new settings", "change"]
+        self.metrics.setColumnCount(len(headers))
+        self.metrics.setHorizontalHeaderLabels(headers)
+        lines = list(self.table.itertuples(index=False))
+        self.metrics.setRowCount(len(lines) + 1)
+        settings_cells = [
+            "settings",
+            settings_text(comp.before_settings),
+            "same as before"
+            if comp.after_settings.same_fit_as(comp.before_settings)
+            else settings_text(comp.after_settings),
+            "",
+        ]
+        if new is not None and comp.new_settings is not None:
+            settings_cells += [settings_text(comp.new_settings), ""]
+        rows_cells = [settings_cells]
+        for line in lines:
             cells = [
                 metric_name(line.metric),
                 _fmt(line.before),
                 _fmt(line.after),
                 _fmt(line.change, True),
             ]
+            if new is not None:
+                value = new.get(line.metric)
+                change = (
+                    float(value) - float(line.before)
+                    if _is_number(value) and _is_number(line.before)
+                    else None
+                )
+                cells += [_fmt(value), _fmt(change, True)]
+            rows_cells.append(cells)
+        for i, cells in enumerate(rows_cells):
             for j, text in enumerate(cells):
                 item = QTableWidgetItem(text)
-                if j:
+                if i == 0:
+                    item.setToolTip(text)
+                if j and i:
                     item.setTextAlignment(
                         Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
                     )
@@ -212,8 +268,15 @@ class CompareView(QWidget):
         self.changed_title.setText(f"Rows whose zone changed: {len(rows):,} (click to select)")
         same = s.baseline is s.latest
         self.status.setText(
-            "Before: the first fit, on the labels as loaded. After: the latest fit"
-            + (" (the same fit: no refit since the first)." if same else ".")
+            "Before: the first fit, on the labels as loaded. After: the edited labels fitted "
+            "with the same settings, so the change is the edits alone"
+            + (" (no refit since the first yet)." if same else ".")
+            + (
+                " The latest fit used other settings: its column shows the edits and the new "
+                "settings together."
+                if new is not None
+                else ""
+            )
             + ("" if s.fit_is_current else " Edits made since the latest fit are not in it.")
         )
         self._show_reference()

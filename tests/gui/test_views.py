@@ -10,7 +10,6 @@ from PySide6.QtTest import QTest
 
 from reviewer.core.output.export import write_summary_html
 from reviewer.core.review import plotdata
-from reviewer.core.review.compare import compare_fits
 from reviewer.core.review.session import ReviewSession
 from reviewer.core.values import FitSettings
 from reviewer.gui.bus import ReviewBus
@@ -133,11 +132,16 @@ def test_dragging_the_threshold_filters_rows_above_it(qtbot, panel, session) -> 
 
 def test_compare_view_shows_compare_fits_numbers(qtbot, panel, session) -> None:
     panel.setCurrentWidget(panel.compare)
-    comp = compare_fits(session.baseline, session.latest)
+    comp = session.comparison()
     table = panel.compare.metrics
+    # The first line names each side's settings: "after" is the edits alone, refitted with
+    # the first fit's settings.
+    assert table.item(0, 0).text() == "settings"
+    assert table.item(0, 2).text() == "same as before"
+    assert table.columnCount() == (6 if panel.compare.comparison.metrics_new else 4)
     shown = {
         table.item(i, 0).text(): [table.item(i, j).text() for j in (1, 2, 3)]
-        for i in range(table.rowCount())
+        for i in range(1, table.rowCount())
     }
     assert len(shown) == len(comp.metrics)
     b, a = comp.metrics["rows wrong side"]
@@ -254,3 +258,34 @@ def test_boundary_is_drawn_for_a_two_feature_table(qtbot, tmp_path) -> None:
         x, _ = proj.lines[0.0].getData()
         np.testing.assert_array_equal(x, ref.segments[0.0][:, [0, 2]].ravel())
         assert len(x) > 0
+
+
+def test_new_settings_get_their_own_labelled_column(qtbot, tmp_path) -> None:
+    pd.read_csv(DEMO).head(240).to_csv(tmp_path / "lots.csv", index=False)
+    s = ReviewSession.open(tmp_path / "lots.csv", label="grade", id_column="lot_id")
+    s.fit(FitSettings(kernel="rbf", C=10, folds=3))
+    wrong = np.flatnonzero(s.latest.rows["zone"].to_numpy() == "wrong_side")
+    s.take_model_label(wrong[:2])
+    s.fit(FitSettings(kernel="rbf", C=1, folds=3))  # edits and a new C together
+    panel = ViewsPanel(s, ReviewBus())
+    qtbot.addWidget(panel)
+    panel.setCurrentWidget(panel.compare)
+    table = panel.compare.metrics
+    headers = [table.horizontalHeaderItem(j).text() for j in range(table.columnCount())]
+    assert headers == [
+        "metric",
+        "before",
+        "after: edits alone",
+        "change",
+        "edits and new settings",
+        "change",
+    ]
+    assert "C 10" in table.item(0, 1).text() and "C 1," in table.item(0, 4).text()
+    comp = panel.compare.comparison
+    # The edits-alone column is the edited labels refitted with the first fit's settings.
+    assert comp.after_settings.same_fit_as(comp.before_settings)
+    rows = {table.item(i, 0).text(): i for i in range(1, table.rowCount())}
+    i = rows["rows wrong side"]
+    assert table.item(i, 4).text() == f"{s.latest.summary.zone_counts['wrong_side']:,}"
+    assert "other settings" in panel.compare.status.text()
+    s.close()
