@@ -35,7 +35,7 @@ bench: $(STAMP)
 	QT_QPA_PLATFORM=offscreen $(PY) -m tests.benchmarks.run_all
 
 screenshot: $(STAMP)
-	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png
+	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png --views assets
 
 clean:
 	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis

@@ -96,7 +96,7 @@ class RowPanel(QWidget):
         grid.setVerticalSpacing(2)
         self.values: dict[str, QLabel] = {}
         fields = (("label", "Label"), ("review", "Review state"), *_FIT_FIELDS)
-        half = (len(fields) + 1) // 2
+        half = len(fields)  # one column of pairs: narrow, and the dock is tall enough
         for i, (key, text) in enumerate(fields):
             lab = ElidedLabel("–")
             lab.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
@@ -107,7 +107,6 @@ class RowPanel(QWidget):
             grid.addWidget(name, r, c)
             grid.addWidget(lab, r, c + 1)
         grid.setColumnStretch(1, 1)
-        grid.setColumnStretch(3, 1)
         grid.setRowStretch(half, 1)
         self.split.addWidget(facts)
 
@@ -131,9 +130,9 @@ class RowPanel(QWidget):
         self.history.setReadOnly(True)
         self.history.setLineWrapMode(QPlainTextEdit.LineWrapMode.WidgetWidth)
         self.split.addWidget(_titled("This row's history", self.history))
-        for i, stretch in enumerate((3, 4, 4, 3)):
+        for i, stretch in enumerate((2, 4, 4, 3)):
             self.split.setStretchFactor(i, stretch)
-        self.split.setSizes([360, 360, 330, 260])
+        self.split.setSizes([250, 400, 340, 260])
 
         bus.row_selected.connect(self.show_row)
 
@@ -219,7 +218,7 @@ class RowPanel(QWidget):
         mine = s.labels[row]
         other = np.array([lab != mine for lab in nb["label"]], dtype=np.int8)
         self.neighbours_model.set_row_style(
-            other, {1: (palette.tint(palette.SKY, 0.25), QColor(palette.TEXT))}
+            other, {1: (palette.tint(palette.YELLOW, 0.35), QColor(palette.TEXT))}
         )
         self.neighbours.resizeColumnsToContents()
 

@@ -85,8 +85,8 @@ def settings_text(st: FitSettings) -> str:
 
 
 def metric_name(name: str) -> str:
-    """A metric's name with every code in it shown by its display name."""
-    return " ".join(display_name(word) for word in str(name).split(" "))
+    """A metric's name with any zone or support code in it shown by its display name."""
+    return " ".join(display_name(word) if "_" in word else word for word in str(name).split(" "))
 
 
 class CompareView(QWidget):

@@ -6,12 +6,13 @@ import shutil
 from pathlib import Path
 
 import pytest
-from PySide6.QtCore import QSettings, QTimer
+from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtWidgets import QApplication, QDialogButtonBox
 
 from reviewer.core.review.session import ReviewSession
 from reviewer.gui.main_window import MainWindow
-from reviewer.gui.roles_dialog import NO_ID, RolesDialog
+from reviewer.gui.reporting import MessageLog
+from reviewer.gui.roles_dialog import NO_ID, PREVIEW_MAX_WIDTH, RolesDialog
 
 DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
 
@@ -32,6 +33,22 @@ def test_dialog_shows_guesses(qtbot, data):
     assert dlg.head_model.rowCount() == 20
     label, _ident, overrides = dlg.choices()
     assert label == "grade" and overrides == {}
+    # The label and id columns are not features: their kind boxes are off and say why.
+    assert not dlg.kind_combos["grade"].isEnabled()
+    assert "label column" in dlg.kind_notes["grade"][0].text()
+    assert dlg.kind_combos["altitude_m"].isEnabled()
+    # The preview shows text in full (up to a generous width), headers not cut.
+    table = dlg.preview_table
+    fm = table.fontMetrics()
+    model = dlg.head_model
+    for col in range(model.columnCount()):
+        header = str(model.headerData(col, Qt.Orientation.Horizontal))
+        width = table.columnWidth(col)
+        assert width >= min(fm.horizontalAdvance(header), PREVIEW_MAX_WIDTH - 20), header
+        longest = max(
+            (str(model.data(model.index(r, col))) for r in range(model.rowCount())), key=len
+        )
+        assert width >= min(fm.horizontalAdvance(longest), PREVIEW_MAX_WIDTH - 20), header
 
 
 def test_choices_reach_the_session(qtbot, data, monkeypatch):
@@ -43,7 +60,7 @@ def test_choices_reach_the_session(qtbot, data, monkeypatch):
         return real_open(path, **kwargs)
 
     monkeypatch.setattr(ReviewSession, "open", staticmethod(spy))
-    win = MainWindow(auto_fit=False)
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
     qtbot.addWidget(win)
 
     def choose():

@@ -186,12 +186,21 @@ def test_reference_scores_are_shown(panel, session) -> None:
 
 def test_c_curve_runs_in_the_background_and_a_click_asks_for_a_refit(qtbot, panel, session):
     c = panel.c_curve
+    panel.setCurrentWidget(c)
+    # Before it is computed: words, not empty axes.
+    if not c.series:
+        assert c.stack.currentWidget() is c.placeholder
     c.Cs = (0.1, 1.0, 10.0)
     c.kernel_combo.setCurrentText("linear")
     with qtbot.waitSignal(c.runner.finished, timeout=120_000):
         c.run_button.click()
     assert len(c.series) == 1 and list(c.series[0].C) == [0.1, 1.0, 10.0]
     assert c.run_button.isEnabled()
+    assert c.stack.currentWidget() is c.layout_widget
+    # The progress bar does not stay full once the curve is done.
+    assert not c.progress_bar.isVisible() and c.progress_bar.value() == 0
+    # One legend entry per measure, not one per measure and series.
+    assert [len(legend.items) for legend in c.legends] == [2, 2]
     # The chosen C of the latest fit is marked.
     assert c.chosen_lines and c.chosen_lines[0].value() == pytest.approx(np.log10(10.0))
     series, _name, curve = next(x for x in c.curves if x[1] == "accuracy")
