@@ -11,6 +11,7 @@ from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QGridLayout,
+    QHeaderView,
     QLabel,
     QPlainTextEdit,
     QSplitter,
@@ -56,6 +57,16 @@ def _titled(title: str, body: QWidget) -> QWidget:
     return box
 
 
+def _fit_columns(view: QTableView) -> None:
+    """Every column as wide as its header and values, the first one taking (or giving up)
+    the rest, so a narrow panel elides names instead of hiding the numbers off the edge."""
+    header = view.horizontalHeader()
+    header.setStretchLastSection(False)
+    for i in range(header.count()):
+        mode = QHeaderView.ResizeMode.Stretch if i == 0 else QHeaderView.ResizeMode.ResizeToContents
+        header.setSectionResizeMode(i, mode)
+
+
 def _small_table(name: str) -> QTableView:
     view = QTableView()
     view.setObjectName(name)
@@ -63,7 +74,6 @@ def _small_table(name: str) -> QTableView:
     view.verticalHeader().setDefaultSectionSize(22)
     view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
     view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
-    view.horizontalHeader().setStretchLastSection(True)
     view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
     return view
 
@@ -114,7 +124,7 @@ class RowPanel(QWidget):
         self.features = _small_table("features_table")
         self.features.setModel(self.features_model)
         self.split.addWidget(
-            _titled("Features beside the class's typical values (tinted: unusual)", self.features)
+            _titled("Features beside the class's typical values (⚑ tinted: unusual)", self.features)
         )
 
         self.neighbours_model = ArrayTableModel()
@@ -183,26 +193,26 @@ class RowPanel(QWidget):
     def _show_features(self, s: ReviewSession, row: int) -> None:
         prof = s.feature_profile(row)
         unusual = prof["unusual"].to_numpy(dtype=bool)
+        # Unusual features carry a flag as well as the tint, so they read without colour.
+        names = np.array(
+            [f"⚑ {n}" if u else str(n) for n, u in zip(prof["feature"], unusual, strict=True)],
+            dtype=object,
+        )
         self.features_model.set_columns(
             [
-                ColumnSpec("feature", "Feature", prof["feature"].to_numpy(dtype=object)),
+                ColumnSpec("feature", "Feature", names),
                 ColumnSpec("value", "This row", prof["value"].astype(object).to_numpy()),
                 ColumnSpec(
                     "typical", "Class typical", prof["class_typical"].astype(object).to_numpy()
                 ),
                 ColumnSpec("distance", "Distance", prof["distance"].to_numpy(dtype=float), 2),
-                ColumnSpec(
-                    "unusual",
-                    "",
-                    np.where(unusual, "unusual", "").astype(object),
-                ),
             ]
         )
         self.features_model.set_row_style(
             unusual.astype(np.int8),
             {1: (palette.tint(palette.ORANGE, 0.3), QColor(palette.TEXT))},
         )
-        self.features.resizeColumnsToContents()
+        _fit_columns(self.features)
 
     def _show_neighbours(self, s: ReviewSession, row: int) -> None:
         nb = s.neighbours(row)
@@ -220,7 +230,7 @@ class RowPanel(QWidget):
         self.neighbours_model.set_row_style(
             other, {1: (palette.tint(palette.YELLOW, 0.35), QColor(palette.TEXT))}
         )
-        self.neighbours.resizeColumnsToContents()
+        _fit_columns(self.neighbours)
 
     def _neighbour_clicked(self, index) -> None:
         m = self.neighbours_model

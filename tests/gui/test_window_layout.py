@@ -99,6 +99,12 @@ def test_every_panel_is_on_a_1366x768_screen(qtbot, tmp_path):
             r = window_rect(w, win)
             assert screen.contains(r), (dock.objectName(), type(w).__name__, r)
             assert r.width() > 8 and r.height() > 8, (dock.objectName(), type(w).__name__)
+    # The row panel's tables show every column, Distance included (names elide instead).
+    for view in (win.row_panel.features, win.row_panel.neighbours):
+        header = view.horizontalHeader()
+        last = header.count() - 1
+        right = header.sectionViewportPosition(last) + header.sectionSize(last)
+        assert right <= view.viewport().width() + 1, view.objectName()
     # The list and the toolbar too.
     for w in (win.table, win.id_filter, win.reason_combo, win.toolbar):
         assert screen.contains(window_rect(w, win)), type(w).__name__
