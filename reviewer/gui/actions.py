@@ -319,3 +319,10 @@ def build_toolbar(bar: QToolBar, actions: dict[str, QAction]) -> None:
 def update_enabled(actions: dict[str, QAction], session: ReviewSession | None, busy: bool) -> None:
     for a in ACTIONS:
         actions[a.id].setEnabled(a.enabled(session, busy))
+
+
+def keys_markdown() -> str:
+    """The help panel's key table as Markdown, for the README (a test keeps them equal)."""
+    lines = ["| key | does |", "|---|---|"]
+    lines += [f"| {keys} | {does} |" for keys, does in help_rows()]
+    return "\n".join(lines)

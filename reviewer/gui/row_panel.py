@@ -16,6 +16,7 @@ from PySide6.QtWidgets import (
     QPlainTextEdit,
     QSplitter,
     QTableView,
+    QTabWidget,
     QVBoxLayout,
     QWidget,
 )
@@ -58,10 +59,8 @@ def _titled(title: str, body: QWidget) -> QWidget:
 
 
 def _fit_columns(view: QTableView) -> None:
-    """Every column as wide as its header and values, the first one taking (or giving up)
-    the rest, so a narrow panel elides names instead of hiding the numbers off the edge."""
+    """Every column as wide as its header and values; the last one takes what is left."""
     header = view.horizontalHeader()
-    header.setStretchLastSection(False)
     for i in range(header.count()):
         mode = QHeaderView.ResizeMode.Stretch if i == 0 else QHeaderView.ResizeMode.ResizeToContents
         header.setSectionResizeMode(i, mode)
@@ -131,18 +130,21 @@ class RowPanel(QWidget):
         self.neighbours = _small_table("neighbours_table")
         self.neighbours.setModel(self.neighbours_model)
         self.neighbours.clicked.connect(self._neighbour_clicked)
-        self.split.addWidget(
-            _titled("Nearest labelled rows (tinted: another label; click to go)", self.neighbours)
-        )
-
         self.history = QPlainTextEdit()
         self.history.setObjectName("history")
         self.history.setReadOnly(True)
         self.history.setLineWrapMode(QPlainTextEdit.LineWrapMode.WidgetWidth)
-        self.split.addWidget(_titled("This row's history", self.history))
-        for i, stretch in enumerate((2, 4, 4, 3)):
+        # Neighbours and history share a tabbed part, so each gets the width it needs.
+        self.context_tabs = QTabWidget()
+        self.context_tabs.setObjectName("row_context_tabs")
+        self.context_tabs.addTab(self.neighbours, "Nearest labelled rows")
+        self.context_tabs.addTab(self.history, "History")
+        self.context_tabs.setTabToolTip(0, "Tinted: another label. Click one to go to it.")
+        self.context_tabs.setTabToolTip(1, "Every decision and note on this row, newest last")
+        self.split.addWidget(self.context_tabs)
+        for i, stretch in enumerate((2, 4, 4)):
             self.split.setStretchFactor(i, stretch)
-        self.split.setSizes([250, 400, 340, 260])
+        self.split.setSizes([250, 420, 430])
 
         bus.row_selected.connect(self.show_row)
 
@@ -189,6 +191,7 @@ class RowPanel(QWidget):
                 + (f"  ({extra})" if extra else "")
             )
         self.history.setPlainText("\n".join(lines) or "No decisions yet.")
+        self.context_tabs.setTabText(1, f"History ({len(lines)})" if lines else "History")
 
     def _show_features(self, s: ReviewSession, row: int) -> None:
         prof = s.feature_profile(row)
@@ -218,11 +221,12 @@ class RowPanel(QWidget):
         nb = s.neighbours(row)
         self.neighbours_model.set_columns(
             [
-                ColumnSpec("row_id", "Id", nb["row_id"].astype(object).to_numpy()),
+                # The table position, for the click; hidden (the id names the row).
+                ColumnSpec("row", "Row", nb["row"].to_numpy(dtype=np.int64)),
+                ColumnSpec("row_id", s.roles.id or "Row", nb["row_id"].astype(object).to_numpy()),
                 ColumnSpec("label", "Label", nb["label"].astype(object).to_numpy()),
                 ColumnSpec("slack", "Slack", nb["slack"].to_numpy(dtype=float), 2),
                 ColumnSpec("distance", "Distance", nb["distance"].to_numpy(dtype=float), 2),
-                ColumnSpec("row", "Row", nb["row"].to_numpy(dtype=np.int64)),
             ]
         )
         mine = s.labels[row]
@@ -230,6 +234,7 @@ class RowPanel(QWidget):
         self.neighbours_model.set_row_style(
             other, {1: (palette.tint(palette.YELLOW, 0.35), QColor(palette.TEXT))}
         )
+        self.neighbours.setColumnHidden(0, True)
         _fit_columns(self.neighbours)
 
     def _neighbour_clicked(self, index) -> None:

@@ -292,3 +292,8 @@ def test_long_text_elides_with_its_tooltip(qtbot):
     assert label.is_elided() and label.shown_text().endswith("…")
     assert label.toolTip() == label.text()
     assert label.minimumSizeHint().width() < 60
+
+
+def test_readme_keys_are_the_help_panels(qtbot):
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text(encoding="utf-8")
+    assert actions.keys_markdown() in readme
