@@ -70,7 +70,17 @@ def build_parser() -> argparse.ArgumentParser:
     p_scan.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
     p_scan.add_argument("--score", choices=["heldout", "training"], default="heldout")
     p_scan.add_argument("--seed", type=int, default=0)
-    p_scan.add_argument("--out", help="output CSV (default: standard output)")
+    p_scan.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
+    p_scan.add_argument(
+        "--treat-as-classes",
+        action="store_true",
+        help="review a numeric label with many distinct values as classes anyway",
+    )
+    p_scan.add_argument(
+        "--out",
+        help="output file: CSV, or Parquet when it ends in .parquet (default: standard output); "
+        "an earlier output is replaced, the input never",
+    )
 
     p_probe = sub.add_parser(
         "probe", help="plant known label flips in a copy and report how many the ranking finds"
@@ -88,6 +98,12 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p_probe.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
     p_probe.add_argument("--out", help="also write the result as JSON to this file")
+    p_probe.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
+    p_probe.add_argument(
+        "--treat-as-classes",
+        action="store_true",
+        help="review a numeric label with many distinct values as classes anyway",
+    )
 
     p_export = sub.add_parser("export", help="write the cleaned table, audit log and summary")
     p_export.add_argument("session")
@@ -133,7 +149,7 @@ def _one_line(text: str) -> str:
 
 
 def _scan(args: argparse.Namespace) -> int:
-    from reviewer.core.door import scan_file
+    from reviewer.core.door import check_scan_target, scan_file, write_scan_table
     from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
@@ -147,10 +163,19 @@ def _scan(args: argparse.Namespace) -> int:
         seed=args.seed,
         score=args.score,
     ).validate()
-    outcome = scan_file(args.data, args.label, id_column=args.id_column, settings=settings)
+    if args.out:
+        check_scan_target(args.out, protect=[Path(args.data)])
+    outcome = scan_file(
+        args.data,
+        args.label,
+        id_column=args.id_column,
+        settings=settings,
+        treat_as_classes=args.treat_as_classes,
+        sheet=args.sheet,
+    )
     table = outcome.table
     if args.out:
-        Path(args.out).write_text(table.to_csv(index=False), encoding="utf-8")
+        write_scan_table(table, args.out, protect=[Path(args.data)])
     else:
         table.to_csv(sys.stdout, index=False)
     s = outcome.fit.summary
@@ -161,6 +186,7 @@ def _scan(args: argparse.Namespace) -> int:
         f"rows: {s.n_rows} ({s.n_fitted} fitted, {s.n_unlabelled} unlabelled)",
         f"classes: {', '.join(f'{c} ({n})' for c, n in s.class_counts.items())}",
         f"zones: {zones}",
+        *_column_lines(outcome.roles),
         f"settings: kernel={used.kernel}, C={float(used.C or 0):g}{gamma}, folds={used.folds}, "
         f"score={used.score}",
         *[f"note: {n}" for n in s.notes],
@@ -168,6 +194,19 @@ def _scan(args: argparse.Namespace) -> int:
     ]
     sys.stderr.write("\n".join(lines) + "\n")
     return 0
+
+
+def _column_lines(roles: object) -> list[str]:
+    """One summary line per column kind; ignored columns with their reasons."""
+    kinds = [
+        ("label", [getattr(roles, "label", None)]),
+        ("id", [getattr(roles, "id", None)]),
+        ("numeric", list(getattr(roles, "numeric", []))),
+        ("categorical", list(getattr(roles, "categorical", []))),
+    ]
+    lines = [f"{kind}: {', '.join(map(str, cols))}" for kind, cols in kinds if any(cols)]
+    lines += [f"ignored: {col} ({why})" for col, why in getattr(roles, "ignored", {}).items()]
+    return lines
 
 
 def _probe(args: argparse.Namespace) -> int:
@@ -187,6 +226,8 @@ def _probe(args: argparse.Namespace) -> int:
         settings=settings,
         rate=args.rate,
         seed=args.seed,
+        treat_as_classes=args.treat_as_classes,
+        sheet=args.sheet,
     )
     sys.stdout.write(format_probe(result) + "\n")
     if args.out:

@@ -19,6 +19,7 @@ from reviewer.core.data.roles import KINDS
 from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
 from reviewer.core.model.scan import ScanOutcome, scan_table
 from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
+from reviewer.core.output.scantable import check_scan_target, write_scan_table
 from reviewer.core.review.compare import CAUTION as COMPARISON_CAUTION
 from reviewer.core.review.compare import Comparison, score_on_reference
 from reviewer.core.review.plotdata import (
@@ -65,6 +66,7 @@ __all__ = [
     "TablePreview",
     "boundary_in_projection",
     "c_curve_job",
+    "check_scan_target",
     "compare",
     "curve_series",
     "default_session_path",
@@ -80,6 +82,7 @@ __all__ = [
     "session_projection",
     "slack_above",
     "slack_histogram",
+    "write_scan_table",
 ]
 
 
@@ -89,11 +92,19 @@ def scan_file(
     *,
     id_column: str | None = None,
     settings: FitSettings | None = None,
+    treat_as_classes: bool = False,
+    sheet: str | None = None,
     progress: Callable[[float, str], None] | None = None,
 ) -> ScanOutcome:
     """Load a table and rank its rows: the ``scan`` command's work."""
-    loaded = load_table(data, progress=progress)
-    return scan_table(loaded, label, id_column=id_column, settings=settings or FitSettings())
+    loaded = load_table(data, sheet=sheet, progress=progress)
+    return scan_table(
+        loaded,
+        label,
+        id_column=id_column,
+        settings=settings or FitSettings(),
+        treat_as_classes=treat_as_classes,
+    )
 
 
 def probe_file(
@@ -104,9 +115,11 @@ def probe_file(
     settings: FitSettings | None = None,
     rate: float = 0.05,
     seed: int = 0,
+    treat_as_classes: bool = False,
+    sheet: str | None = None,
 ) -> ProbeResult:
     """Load a table, plant known flips in a copy and measure how many the ranking finds."""
-    loaded = load_table(data)
+    loaded = load_table(data, sheet=sheet)
     return probe_table(
         loaded,
         label,
@@ -114,6 +127,7 @@ def probe_file(
         settings=settings or FitSettings(),
         rate=rate,
         seed=seed,
+        treat_as_classes=treat_as_classes,
     )
 
 

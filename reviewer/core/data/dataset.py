@@ -15,6 +15,7 @@ import pandas as pd
 from reviewer.core.data.features import feature_matrix
 from reviewer.core.data.loading import LoadedTable, label_strings
 from reviewer.core.data.roles import ColumnRoles, infer_roles
+from reviewer.core.errors import InputError
 
 
 @dataclass
@@ -38,6 +39,29 @@ def row_ids(frame: pd.DataFrame, id_column: str | None) -> np.ndarray:
     return label_strings(frame[id_column])
 
 
+CONTINUOUS_MIN_DISTINCT = 20
+"""A float label with at least this many distinct non-whole values looks continuous."""
+
+
+def check_label_column(values: pd.Series, column: str) -> None:
+    """Refuse a label that looks like a measurement rather than classes: floats, most of them
+    not whole numbers, with many distinct values (a regression target reviewed as classes
+    would give one class per value)."""
+    if not pd.api.types.is_float_dtype(values):
+        return
+    present = values.dropna().to_numpy(dtype=float)
+    distinct = np.unique(present)
+    fractional = distinct[distinct != np.round(distinct)]
+    if len(fractional) >= CONTINUOUS_MIN_DISTINCT and len(fractional) > len(distinct) // 2:
+        shown = ", ".join(f"{v:g}" for v in fractional[:3])
+        raise InputError(
+            f"label column {column!r} looks like a continuous target ({len(distinct):,} "
+            f"distinct numbers such as {shown}); margin review ranks class labels. Bin it "
+            "into classes first, or pass --treat-as-classes to review every distinct value "
+            "as a class"
+        )
+
+
 def prepare_dataset(
     loaded: LoadedTable,
     roles: ColumnRoles | None = None,
@@ -45,11 +69,25 @@ def prepare_dataset(
     label: str | None = None,
     id_column: str | None = None,
     overrides: Mapping[str, str] | None = None,
+    check_label: bool = False,
 ) -> Dataset:
     """Roles (given, or inferred from ``label``, ``id_column`` and ``overrides``), features,
-    labels and ids of a loaded table."""
+    labels and ids of a loaded table. ``check_label`` refuses a label column that looks
+    like a continuous target (see `check_label_column`)."""
     if roles is None:
+        if label is None:
+            raise InputError(f"{loaded.source.path}: choose the label column")
+        src = loaded.source
+        if label not in loaded.frame.columns and len(src.sheets) > 1:
+            others = [s for s in src.sheets if s != src.sheet]
+            raise InputError(
+                f"{src.path}: label column {label!r} is not on sheet {src.sheet!r}, the one "
+                f"read; the workbook also has {', '.join(repr(s) for s in others)} "
+                "(choose one with --sheet)"
+            )
         roles = infer_roles(loaded.frame, label, id_column, overrides)
+    if check_label:
+        check_label_column(loaded.frame[roles.label], roles.label)
     X, names = feature_matrix(loaded.frame, roles)
     return Dataset(
         loaded=loaded,

@@ -22,8 +22,33 @@ from reviewer.core.progress import ProgressFn, Reporter
 DELIMITED_SUFFIXES = {".csv", ".tsv", ".tab", ".txt", ".dat", ".psv"}
 PARQUET_SUFFIXES = {".parquet", ".pq"}
 EXCEL_SUFFIXES = {".xlsx", ".xlsm"}
-# Extra spellings of "missing" seen in exported spreadsheets and survey tools (common practice).
-MISSING_MARKERS = ["?", "null", "NULL", "Null", "NaN", "nan", "NA", "N/A", "n/a", "-", ""]
+# Every text read as a missing value: pandas' default na_values (its read_csv documentation)
+# plus spellings seen in exported spreadsheets and survey tools (common practice). Export
+# uses the same list to tell a missing label from a changed one.
+MISSING_MARKERS = [
+    "",
+    "#N/A",
+    "#N/A N/A",
+    "#NA",
+    "-1.#IND",
+    "-1.#QNAN",
+    "-NaN",
+    "-nan",
+    "1.#IND",
+    "1.#QNAN",
+    "<NA>",
+    "N/A",
+    "NA",
+    "NULL",
+    "NaN",
+    "None",
+    "n/a",
+    "nan",
+    "null",
+    "?",
+    "Null",
+    "-",
+]
 DELIMITER_CANDIDATES = [",", ";", "\t", "|"]
 CHUNK_ROWS = 250_000
 
@@ -40,6 +65,48 @@ class SourceInfo:
     sheet: str | None
     n_rows: int
     columns: tuple[str, ...]
+    sheets: tuple[str, ...] = ()  # every sheet of a workbook (``sheet`` is the one read)
+    compression: str | None = None  # "gzip", "bz2", "xz" or "zip" for a compressed text file
+
+
+COMPRESSED_SUFFIXES = {".gz": "gzip", ".bz2": "bz2", ".xz": "xz", ".zip": "zip"}
+
+
+def decompress(raw: bytes, compression: str, p: Path) -> bytes:
+    """The bytes of a compressed delimited file, as pandas would read them."""
+    import bz2
+    import gzip
+    import lzma
+
+    try:
+        if compression == "gzip":
+            return gzip.decompress(raw)
+        if compression == "bz2":
+            return bz2.decompress(raw)
+        if compression == "xz":
+            return lzma.decompress(raw)
+        with zipfile.ZipFile(io.BytesIO(raw)) as archive:
+            members = [m for m in archive.infolist() if not m.is_dir()]
+            if len(members) != 1:
+                raise InputError(
+                    f"{p}: a zip archive must hold exactly one table file; it holds {len(members)}"
+                )
+            return archive.read(members[0])
+    except (OSError, EOFError, lzma.LZMAError, zipfile.BadZipFile, ValueError) as exc:
+        raise InputError(f"{p}: damaged {compression} file ({_first_line(exc)})") from exc
+
+
+def _compression_of(p: Path, raw: bytes) -> str | None:
+    by_suffix = COMPRESSED_SUFFIXES.get(p.suffix.lower())
+    if by_suffix:
+        return by_suffix
+    if raw[:2] == b"\x1f\x8b":
+        return "gzip"
+    if raw[:3] == b"BZh":
+        return "bz2"
+    if raw[:6] == b"\xfd7zXZ\x00":
+        return "xz"
+    return None
 
 
 @dataclass
@@ -79,12 +146,18 @@ def load_table(
     digest = hashlib.sha256(raw).hexdigest()
     if not raw.strip():
         raise InputError(f"{p}: the file is empty")
-    kind = _detect_kind(p, raw)
+    compression = _compression_of(p, raw)
+    if compression:
+        raw = decompress(raw, compression, p)
+        if not raw.strip():
+            raise InputError(f"{p}: the file is empty once decompressed")
+    sheets: tuple[str, ...] = ()
+    kind = "delimited" if compression else _detect_kind(p, raw)
     if kind == "parquet":
         frame = _read_parquet(p, raw)
         delimiter = encoding = used_sheet = None
     elif kind == "excel":
-        frame, used_sheet = _read_excel(p, raw, sheet)
+        frame, used_sheet, sheets = _read_excel(p, raw, sheet)
         delimiter = encoding = None
     else:
         encoding = detect_encoding(raw, p)
@@ -107,6 +180,8 @@ def load_table(
         sheet=used_sheet,
         n_rows=len(frame),
         columns=tuple(frame.columns),
+        sheets=sheets,
+        compression=compression,
     )
     return LoadedTable(frame=frame, source=info)
 
@@ -223,7 +298,9 @@ def _read_parquet(p: Path, raw: bytes) -> pd.DataFrame:
         raise InputError(f"{p}: damaged or unreadable Parquet file ({_first_line(exc)})") from exc
 
 
-def _read_excel(p: Path, raw: bytes, sheet: str | None) -> tuple[pd.DataFrame, str]:
+def _read_excel(
+    p: Path, raw: bytes, sheet: str | None
+) -> tuple[pd.DataFrame, str, tuple[str, ...]]:
     try:
         book = pd.ExcelFile(io.BytesIO(raw), engine="openpyxl")
     except (zipfile.BadZipFile, KeyError, ValueError, OSError) as exc:
@@ -240,7 +317,7 @@ def _read_excel(p: Path, raw: bytes, sheet: str | None) -> tuple[pd.DataFrame, s
         frame = pd.read_excel(book, sheet_name=chosen, na_values=MISSING_MARKERS)
     except Exception as exc:
         raise InputError(f"{p}: sheet {chosen!r} cannot be read ({_first_line(exc)})") from exc
-    return frame.reset_index(drop=True), chosen
+    return frame.reset_index(drop=True), chosen, tuple(names)
 
 
 def _tidy_columns(frame: pd.DataFrame, p: Path) -> pd.DataFrame:

@@ -108,11 +108,11 @@ def infer_roles(
     for col in columns:
         if col in (label, id_column):
             continue
-        kind, reason = overrides.get(col), ""
-        if kind is None:
+        chosen = overrides.get(col)
+        if chosen is None:
             kind, reason = infer_kind(frame[col])
-        elif kind == "ignore":
-            reason = "ignored by choice"
+        else:
+            kind, reason = chosen, "ignored by choice" if chosen == "ignore" else ""
         if kind == "numeric":
             roles.numeric.append(col)
         elif kind == "categorical":
@@ -136,6 +136,8 @@ def infer_kind(values: pd.Series) -> tuple[str, str]:
         return "ignore", "date or time (not used as a feature)"
     if pd.api.types.is_bool_dtype(s.dtype):
         return ("numeric", "") if present.nunique() > 1 else ("ignore", "constant")
+    if s.dtype == object and isinstance(present.iloc[0], (list, tuple, np.ndarray, dict)):
+        return "ignore", "a list or record per row (vector columns are not features yet)"
     n_unique = present.nunique()
     if n_unique <= 1:
         return "ignore", "constant"

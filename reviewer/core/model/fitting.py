@@ -87,7 +87,21 @@ def fit_margins(
             if len(classes) == 1
             else "need at least two classes to fit"
         )
+    counts = np.bincount(fit_idx)
+    if int(counts.max()) < 2:
+        raise InputError(
+            f"every class has a single labelled row ({len(classes):,} classes in "
+            f"{len(fit_rows):,} rows): a review needs classes with two or more rows, since "
+            "a row's held-out margin comes from a model that saw other rows of its class. "
+            "Is this an id column rather than a label?"
+        )
     notes: list[str] = []
+    singles = int(np.sum(counts < 2))
+    if singles > len(classes) // 2:
+        notes.append(
+            f"{singles:,} of {len(classes):,} classes have a single labelled row; their rows "
+            "get no held-out margin, so the ranking cannot judge them"
+        )
     resolved = settings.to_dict()
     candidates: list[dict] = []
     Xf = X[fit_rows]

@@ -190,6 +190,7 @@ def probe_table(
     rate: float = 0.05,
     seed: int = 0,
     overrides: Mapping[str, str] | None = None,
+    treat_as_classes: bool = False,
     progress: ProgressFn | None = None,
     cancel=None,
 ) -> ProbeResult:
@@ -199,7 +200,13 @@ def probe_table(
     # Check the rate before the (slower) feature build so a bad rate fails at once.
     if label in loaded.frame.columns:
         plant_flips(label_strings(loaded.frame[label]), rate, seed)
-    data = prepare_dataset(loaded, label=label, id_column=id_column, overrides=overrides)
+    data = prepare_dataset(
+        loaded,
+        label=label,
+        id_column=id_column,
+        overrides=overrides,
+        check_label=not treat_as_classes,
+    )
     result = probe_labels(
         data.X,
         data.labels,

@@ -47,13 +47,20 @@ def scan_table(
     id_column: str | None = None,
     settings: FitSettings | None = None,
     overrides: Mapping[str, str] | None = None,
+    treat_as_classes: bool = False,
     progress: ProgressFn | None = None,
     cancel=None,
 ) -> ScanOutcome:
     report = Reporter(progress, cancel)
     settings = (settings or FitSettings()).validate()
     report(0.0, "building features")
-    data = prepare_dataset(loaded, label=label, id_column=id_column, overrides=overrides)
+    data = prepare_dataset(
+        loaded,
+        label=label,
+        id_column=id_column,
+        overrides=overrides,
+        check_label=not treat_as_classes,
+    )
     roles, labels, ids = data.roles, data.labels, data.ids
     fit = fit_margins(data.X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
     groups = conflicting_duplicates(loaded.frame, roles, labels)

@@ -3,7 +3,9 @@
 Bytes go to a temporary file beside the target (same folder, so the final rename never
 crosses file systems), are flushed and fsync'ed, and then the temporary file is moved
 into place. On any failure the temporary file is removed and ExportError names the
-target and the cause; the target is then either absent or exactly as it was before.
+target and the cause; the target is then either absent or exactly as it was before. A
+temporary is locked while it is written, so one that a killed export left behind can be
+told from one a running export is writing, and is removed by the next export.
 
 An existing target is refused unless ``overwrite=True``: a cleaned table or an audit log
 is easy to lose by writing over yesterday's, so replacing one must be asked for. A
@@ -16,12 +18,23 @@ from __future__ import annotations
 import errno
 import io
 import os
-import tempfile
+import re
+import secrets
+import stat
+import time
 from collections.abc import Callable, Iterable
 from pathlib import Path
-from typing import BinaryIO
+from typing import Any, BinaryIO
 
 from reviewer.core.errors import ExportError
+
+try:
+    import fcntl
+except ImportError:  # not on Windows
+    fcntl = None  # type: ignore[assignment]
+
+#: How to ask for a replacement, said in the words of the command line and of Python.
+OVERWRITE_HINT = "pass --overwrite (overwrite=True in Python) to replace it"
 
 _CAUSES = {
     errno.ENOSPC: "disk full",
@@ -66,7 +79,7 @@ class _FdStream(io.RawIOBase):
     def seekable(self) -> bool:
         return True
 
-    def write(self, data) -> int:  # type: ignore[override]
+    def write(self, data: Any) -> int:  # type: ignore[override]
         if self._fd < 0:
             return len(data)  # see _ignore_after_release
         view = memoryview(data).cast("B")
@@ -75,7 +88,7 @@ class _FdStream(io.RawIOBase):
             done += os.write(self._fd, view[done:])
         return done
 
-    def readinto(self, buffer) -> int:  # type: ignore[override]
+    def readinto(self, buffer: Any) -> int:  # type: ignore[override]
         chunk = os.read(self._fd, len(buffer))
         buffer[: len(chunk)] = chunk
         return len(chunk)
@@ -165,8 +178,7 @@ def check_target(
         raise ExportError(f"Cannot write {path}: the target is a folder")
     if path.exists() and not overwrite:
         raise ExportError(
-            f"Refusing to export to {path}: the file already exists "
-            "(pass overwrite=True to replace it)"
+            f"Refusing to export to {path}: the file already exists; {OVERWRITE_HINT}"
         )
     return path
 
@@ -182,16 +194,17 @@ def atomic_write(
 
     ``protect`` lists files that must never be written (the source data file). Returns the
     absolute target path. Raises ExportError naming the target and the cause; on failure
-    neither the temporary file nor a new target is left behind.
+    neither the temporary file nor a new target is left behind. Temporaries that earlier,
+    killed exports left in the same folder are removed first (remove_stale_temporaries).
     """
     protect = tuple(Path(p) for p in protect)
     path = check_target(target, overwrite=overwrite, protect=protect)
     folder = path.parent
+    remove_stale_temporaries(folder)
     try:
-        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".partial", dir=folder)
+        fd, tmp = _create_temporary(path)
     except OSError as exc:
         raise ExportError(f"Cannot write {path}: {describe_os_error(exc)}") from exc
-    tmp = Path(tmp_name)
     placed = False
     try:
         # Unbuffered on purpose: nothing is left in a buffer to be flushed (and fail) later.
@@ -205,7 +218,11 @@ def atomic_write(
                 os.chmod(tmp, _default_mode())
         finally:
             stream.release()
+        if fcntl is None:  # no advisory lock to keep, and an open file cannot be renamed
             os.close(fd)
+            fd = -1
+        # The descriptor, and so the lock that marks the temporary as in use, is held until
+        # the file is in place: a concurrent export never takes it for a leftover.
         _place(tmp, path, overwrite=overwrite, protect=protect)
         placed = True
         _fsync_folder(folder)
@@ -217,11 +234,131 @@ def atomic_write(
         if not placed:
             try:
                 tmp.unlink()
-            except FileNotFoundError:
-                pass
             except OSError:
-                pass  # the original error is the one worth reporting
+                pass  # gone already, or the original error is the one worth reporting
+        if fd >= 0:
+            os.close(fd)
     return path
+
+
+# -- temporaries -----------------------------------------------------------------------------
+#
+# A temporary is named ".<target name>.mr-<pid>-<token>.partial" and holds an exclusive
+# advisory lock (flock) from creation until it is renamed into place or removed. The lock
+# goes with the process: a killed export leaves an unlocked temporary, which the next export
+# into that folder removes. A locked one belongs to an export still running and is left.
+
+_TEMPORARY = re.compile(r"\.(?P<target>.+)\.mr-(?P<pid>\d+)-(?P<token>[0-9a-f]{12})\.partial")
+# Earlier versions named temporaries ".<target name>.<8 characters>.partial" and did not
+# lock them; one older than this many seconds is a leftover (a live export writes on).
+_LEGACY = re.compile(r"\.(?P<target>.+)\.[a-z0-9_]{8}\.partial")
+LEGACY_STALE_SECONDS = 3600.0
+
+
+def temporary_name(path: Path) -> str:
+    """A fresh temporary file name for ``path`` (same folder), recognisable as ours."""
+    return f".{path.name}.mr-{os.getpid()}-{secrets.token_hex(6)}.partial"
+
+
+def _lock(fd: int) -> str:
+    """Take the exclusive lock without waiting: "locked", "busy" (held) or "unsupported"."""
+    if fcntl is None:
+        return "unsupported"
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except BlockingIOError:
+        return "busy"
+    except OSError:  # a file system without advisory locks
+        return "unsupported"
+    return "locked"
+
+
+def _create_temporary(path: Path) -> tuple[int, Path]:
+    flags = os.O_RDWR | os.O_CREAT | os.O_EXCL | getattr(os, "O_CLOEXEC", 0)
+    flags |= getattr(os, "O_BINARY", 0) | getattr(os, "O_NOFOLLOW", 0)
+    for _ in range(100):
+        tmp = path.parent / temporary_name(path)
+        try:
+            fd = os.open(tmp, flags, 0o600)
+        except FileExistsError:
+            continue
+        # Between creating and locking, a cleaner may have taken the lock and removed the
+        # file; only a file we hold locked under its name is ours to write.
+        try:
+            if _lock(fd) != "busy" and os.stat(tmp).st_ino == os.fstat(fd).st_ino:
+                return fd, tmp
+        except FileNotFoundError:
+            pass
+        except BaseException:
+            os.close(fd)
+            raise
+        os.close(fd)
+    raise FileExistsError(errno.EEXIST, "no free temporary file name", str(path.parent))
+
+
+def remove_stale_temporaries(folder: str | os.PathLike[str]) -> list[Path]:
+    """Remove temporaries that killed exports left in ``folder``; return what was removed.
+
+    Only files named as this module names them are touched, and only when no running
+    export holds them (their lock is free) or, for an earlier version's unlocked names,
+    when they have not been written to for LEGACY_STALE_SECONDS. Errors are ignored: a
+    leftover that cannot be removed does no harm to the export under way.
+    """
+    removed: list[Path] = []
+    try:
+        names = os.listdir(folder)
+    except OSError:
+        return removed
+    now = time.time()
+    for name in names:
+        if not name.endswith(".partial"):
+            continue
+        path = Path(folder) / name
+        try:
+            if _TEMPORARY.fullmatch(name):
+                if _remove_if_unlocked(path):
+                    removed.append(path)
+            elif _LEGACY.fullmatch(name):
+                info = path.lstat()
+                if stat.S_ISREG(info.st_mode) and now - info.st_mtime > LEGACY_STALE_SECONDS:
+                    path.unlink()
+                    removed.append(path)
+        except OSError:
+            continue
+    return removed
+
+
+def _remove_if_unlocked(path: Path) -> bool:
+    flags = os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_CLOEXEC", 0)
+    if fcntl is None:
+        # Without advisory locks, a temporary whose process is gone is a leftover.
+        match = _TEMPORARY.fullmatch(path.name)
+        if match is None or _process_alive(int(match["pid"])):
+            return False
+        path.unlink()
+        return True
+    fd = os.open(path, flags)
+    try:
+        if _lock(fd) != "locked":
+            return False  # an export is writing it right now, or we cannot tell
+        if os.lstat(path).st_ino != os.fstat(fd).st_ino:
+            return False  # replaced meanwhile by a new temporary of the same name
+        path.unlink()
+        return True
+    finally:
+        os.close(fd)
+
+
+def _process_alive(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:
+        return True  # exists, owned by someone else
+    return True
 
 
 def _place(tmp: Path, path: Path, *, overwrite: bool, protect: tuple[Path, ...]) -> None:
@@ -235,8 +372,7 @@ def _place(tmp: Path, path: Path, *, overwrite: bool, protect: tuple[Path, ...])
         os.link(tmp, path)
     except FileExistsError as exc:
         raise ExportError(
-            f"Refusing to export to {path}: the file already exists "
-            "(pass overwrite=True to replace it)"
+            f"Refusing to export to {path}: the file already exists; {OVERWRITE_HINT}"
         ) from exc
     except (OSError, NotImplementedError):
         # Some file systems (FAT, some network shares) have no hard links.

@@ -118,7 +118,7 @@ def feature_profile(
         level = "(missing)" if pd.isna(raw) else str(raw)
         shares = norms.levels.get(col, {}).get(label or "", {})
         share = shares.get(level, 0.0)
-        common = max(shares, key=shares.get) if shares else ""
+        common = max(shares, key=lambda k: shares[k]) if shares else ""
         out.append(
             {
                 "feature": col,

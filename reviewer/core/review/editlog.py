@@ -182,6 +182,8 @@ class LabelState:
         self._snapshots: list[tuple[np.ndarray, np.ndarray, np.ndarray] | None] = []
         self._undone: list[Event] = []
         self._last_seq = 0
+        self.inconsistency = ""
+        """Why a lenient replay stopped early; empty when every event replayed."""
 
     # ---- read side -------------------------------------------------------------------
     @property
@@ -327,11 +329,11 @@ class LabelState:
                     f"event {event.seq} undoes seq {event.target}, but the edit to undo is "
                     f"{self.undo_target()}"
                 )
-            top, snapshot = self._done.pop(), self._snapshots.pop()
-            if snapshot is None:
+            top, saved = self._done.pop(), self._snapshots.pop()
+            if saved is None:
                 self._labels, self._review = _final_state(self._source, self._done)
             else:
-                idx, labels, review = snapshot
+                idx, labels, review = saved
                 self._labels[idx] = labels
                 self._review[idx] = review
             self._undone.append(top)
@@ -348,31 +350,42 @@ class LabelState:
 
     @classmethod
     def replay(
-        cls, source_labels: Sequence[Any] | np.ndarray, events: Iterable[Event]
+        cls,
+        source_labels: Sequence[Any] | np.ndarray,
+        events: Iterable[Event],
+        *,
+        lenient: bool = False,
     ) -> LabelState:
         """Rebuild the state from the whole log (all events, in seq order).
 
         Undo/redo are resolved first to find the live edits; their combined effect is
         then computed with numpy in one pass instead of applying them one at a time.
+        An event that does not fit the log before it (an undo of an edit that is not the
+        latest, say) raises SessionError; with ``lenient`` the replay stops before it
+        instead and says why in ``inconsistency``.
         """
         state = cls(source_labels)
         done: list[Event] = []
         undone: list[Event] = []
         last = 0
         for ev in events:
+            problem = ""
             if ev.seq <= last:
-                raise SessionError(f"event seq {ev.seq} does not follow seq {last}")
+                problem = f"event seq {ev.seq} does not follow seq {last}"
+            elif ev.action == UNDO and (not done or done[-1].seq != ev.target):
+                problem = f"event {ev.seq} undoes seq {ev.target}, not the latest edit"
+            elif ev.action == REDO and (not undone or undone[-1].seq != ev.target):
+                problem = f"event {ev.seq} redoes seq {ev.target}, not the last undo"
+            if problem:
+                if not lenient:
+                    raise SessionError(problem)
+                state.inconsistency = problem
+                break
             last = ev.seq
             action = ev.action
             if action == UNDO:
-                if not done or done[-1].seq != ev.target:
-                    raise SessionError(
-                        f"event {ev.seq} undoes seq {ev.target}, not the latest edit"
-                    )
                 undone.append(done.pop())
             elif action == REDO:
-                if not undone or undone[-1].seq != ev.target:
-                    raise SessionError(f"event {ev.seq} redoes seq {ev.target}, not the last undo")
                 done.append(undone.pop())
             elif action != NOTE:
                 done.append(ev)

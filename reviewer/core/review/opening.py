@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import getpass
 import os
+import threading
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -106,7 +107,7 @@ def open_session(
     read_only: bool = False,
     reattach: bool = False,
     progress: ProgressFn | None = None,
-    cancel=None,
+    cancel: threading.Event | None = None,
 ) -> ReviewSession:
     """Open (or start) the review of ``data_path``.
 
@@ -126,6 +127,8 @@ def open_session(
             meta = file.meta
             label_col = meta.get("label_column")
             id_col = meta.get("id_column")
+            if not label_col:
+                raise SessionError(f"session {path} names no label column; it is damaged")
             if label and label != label_col:
                 raise SessionError(
                     f"session {path} reviews label column {label_col!r}, not {label!r}; "

@@ -149,14 +149,16 @@ def contour_segments(
 
     # Edges in order around the cell: bottom, right, top, left.
     hits, px, py = [], [], []
-    h, t = cut(a, b)
-    hits.append(h), px.append(x0 + t * (x1 - x0)), py.append(y0)
-    h, t = cut(b, c)
-    hits.append(h), px.append(x1), py.append(y0 + t * (y1 - y0))
-    h, t = cut(d, c)
-    hits.append(h), px.append(x0 + t * (x1 - x0)), py.append(y1)
-    h, t = cut(a, d)
-    hits.append(h), px.append(x0), py.append(y0 + t * (y1 - y0))
+    for (u, v), (cx, cy) in (
+        ((a, b), (lambda t: x0 + t * (x1 - x0), lambda t: y0)),
+        ((b, c), (lambda t: x1, lambda t: y0 + t * (y1 - y0))),
+        ((d, c), (lambda t: x0 + t * (x1 - x0), lambda t: y1)),
+        ((a, d), (lambda t: x0, lambda t: y0 + t * (y1 - y0))),
+    ):
+        h, t = cut(u, v)
+        hits.append(h)
+        px.append(np.broadcast_to(cx(t), t.shape))
+        py.append(np.broadcast_to(cy(t), t.shape))
     H = np.stack(hits, -1).reshape(-1, 4)
     PX = np.stack(px, -1).reshape(-1, 4)
     PY = np.stack(py, -1).reshape(-1, 4)

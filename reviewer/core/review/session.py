@@ -101,7 +101,18 @@ class ReviewSession:
         self._state = LabelState.replay(
             np.concatenate([self.source_labels, np.full(len(ghosts), None, dtype=object)]),
             [self._to_current(e) for e in events],
+            lenient=True,
         )
+        if self._state.inconsistency:
+            # A log that does not replay in full must still open: show what replays, read
+            # only, so nothing is written on top of it and the reviewer can export.
+            kept = self._state.last_seq
+            events = [e for e in events if e.seq <= kept]
+            file.demote(
+                f"the edit log is inconsistent ({self._state.inconsistency}); opened read-only "
+                f"with the {len(events)} events before it"
+            )
+            warnings.append(file.read_only_reason)
         self._events: list[Event] = []
         self._by_row: dict[int, list[int]] = {}
         for e in events:

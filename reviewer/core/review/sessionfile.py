@@ -138,14 +138,27 @@ class FitRecord:
 
 
 class _Lock:
-    """Exclusive, non-blocking OS lock on a sidecar file; released when the process dies."""
+    """Exclusive, non-blocking OS lock on the session file itself; released when the
+    process dies.
+
+    The lock is on the file (its inode), not on a name: a second writer that reaches the
+    same file through a symbolic link, a hard link or another relative path is refused.
+    flock(2) locks are separate from the POSIX byte-range locks SQLite takes, so the two
+    do not disturb each other; the descriptor is closed only after SQLite's connection.
+    Windows has no flock: a sidecar file named after the resolved path is locked there.
+    """
 
     def __init__(self, db_path: Path) -> None:
-        self.path = db_path.with_name(db_path.name + ".lock")
+        resolved = db_path.resolve()
+        self.path = (
+            resolved.with_name(resolved.name + ".lock") if sys.platform == "win32" else resolved
+        )
         self._fd: int | None = None
 
     def acquire(self, db_path: Path) -> None:
-        fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+        _drop_old_sidecar(db_path)
+        flags = os.O_RDWR | (os.O_CREAT if sys.platform == "win32" else 0)
+        fd = os.open(self.path, flags, 0o644)
         try:
             if sys.platform == "win32":  # pragma: no cover - exercised on Windows only
                 import msvcrt
@@ -159,15 +172,35 @@ class _Lock:
             os.close(fd)
             raise SessionLockedError(
                 f"session file {db_path} is open for writing elsewhere (another window or "
-                f"process holds {self.path.name}); close it there or open this one read-only"
+                "process has it); close it there or open this one read-only"
             ) from exc
         self._fd = fd
 
     def release(self) -> None:
         if self._fd is not None:
-            # Closing the descriptor drops the lock; the sidecar file stays, which is harmless.
-            os.close(self._fd)
+            os.close(self._fd)  # closing the descriptor drops the lock
             self._fd = None
+
+
+def _drop_old_sidecar(db_path: Path) -> None:
+    """Version 0.1 locked a ``.lock`` file beside the session and left it there; remove it
+    unless a 0.1 process still holds it."""
+    old = db_path.with_name(db_path.name + ".lock")
+    if sys.platform == "win32" or not old.is_file():
+        return
+    import fcntl
+
+    try:
+        fd = os.open(old, os.O_RDWR)
+    except OSError:
+        return
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        old.unlink()
+    except OSError:
+        pass  # held by a running 0.1 process, or not ours to remove
+    finally:
+        os.close(fd)
 
 
 def _location_writable(path: Path) -> bool:
@@ -364,6 +397,14 @@ class SessionFile:
     def read_only(self) -> bool:
         return self._lock is None
 
+    def demote(self, reason: str) -> None:
+        """From now on read-only, for ``reason``: the writer lock is dropped."""
+        with self._mutex:
+            if self._lock is not None:
+                self._lock.release()
+                self._lock = None
+            self.read_only_reason = reason
+
     def close(self) -> None:
         """Close the file and drop the writer lock. Safe to call twice."""
         with self._mutex:
@@ -530,7 +571,7 @@ class SessionFile:
                 "INSERT OR REPLACE INTO fit_rows VALUES (?, ?, 'parquet', ?)",
                 (slot, cur.lastrowid, blob),
             )
-            return int(cur.lastrowid)
+            return int(cur.lastrowid or 0)
 
         return self._write(f"save the {slot} fit", insert)
 

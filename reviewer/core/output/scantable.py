@@ -1,0 +1,43 @@
+"""The scan table written to a file: CSV, or Parquet when the name ends in .parquet.
+
+Values are written exactly as they are (the table feeds pipelines). The write is atomic,
+and never lands on an input file, whatever name reaches it (symbolic or hard link).
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Iterable
+from pathlib import Path
+from typing import BinaryIO
+
+import pandas as pd
+
+from reviewer.core.output.atomic import atomic_write, check_target
+
+PARQUET_SUFFIXES = (".parquet", ".pq")
+
+
+def check_scan_target(out: str | os.PathLike[str], *, protect: Iterable[Path] = ()) -> Path:
+    """Refuse a bad output path before the work starts (an input, a folder, no such folder)."""
+    path = check_target(out, overwrite=True, protect=protect)
+    if not path.parent.is_dir():
+        from reviewer.core.errors import ExportError
+
+        raise ExportError(f"Cannot write {path}: folder {path.parent} does not exist")
+    return path
+
+
+def write_scan_table(
+    table: pd.DataFrame, out: str | os.PathLike[str], *, protect: Iterable[Path] = ()
+) -> Path:
+    """Write ``table`` to ``out`` (replacing an earlier output; never a file in ``protect``)."""
+    parquet = str(out).lower().endswith(PARQUET_SUFFIXES)
+
+    def write(stream: BinaryIO) -> None:
+        if parquet:
+            table.to_parquet(stream, index=False)
+        else:
+            stream.write(table.to_csv(index=False).encode("utf-8"))
+
+    return atomic_write(out, write, overwrite=True, protect=protect)
