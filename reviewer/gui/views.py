@@ -291,7 +291,10 @@ class CompareView(QWidget):
     # ---- trusted reference ---------------------------------------------------------------------
     def choose_reference(self) -> None:
         path, _ = QFileDialog.getOpenFileName(
-            self, "Trusted reference file", "", "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls)"
+            self,
+            "Trusted reference file",
+            str(self.session.loaded.source.path.parent),
+            "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls)",
         )
         if not path:
             return
