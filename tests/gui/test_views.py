@@ -63,6 +63,15 @@ def test_scatter_shows_the_projection_core_computed(panel, session) -> None:
     assert symbols[list(rows).index(kept)] == "s"
 
 
+def test_the_legend_stays_off_the_points(panel, session) -> None:
+    proj = panel.projection
+    legend, plot = proj.legend, proj.plot_widget
+    assert legend.isVisible()
+    # The legend sits beside the plot, not over it, and names every class.
+    assert not legend.geometry().intersects(plot.geometry())
+    assert all(c in legend.text() for c in session.classes)
+
+
 def test_clicking_a_point_selects_its_row(qtbot, panel, session) -> None:
     coords, _ = session.projection()
     # The most isolated point, so the click cannot land on a neighbour.

@@ -297,3 +297,27 @@ def test_long_text_elides_with_its_tooltip(qtbot):
 def test_readme_keys_are_the_help_panels(qtbot):
     readme = (Path(__file__).resolve().parents[2] / "README.md").read_text(encoding="utf-8")
     assert actions.keys_markdown() in readme
+
+
+def test_long_class_names_do_not_widen_the_window(qtbot, tmp_path):
+    # Nine classes with long names, and long ids: everything that shows them elides.
+    rng = np.random.default_rng(5)
+    n = 270
+    names = [f"a rather long class name for group number {i} of the survey" for i in range(9)]
+    frame = pd.DataFrame(rng.normal(size=(n, 3)), columns=["x", "y", "z"])
+    frame["item"] = [f"item-with-a-very-long-identifier-{i:05d}-from-the-archive" for i in range(n)]
+    frame["kind"] = [names[i % 9] for i in range(n)]
+    path = tmp_path / "long.csv"
+    frame.to_csv(path, index=False)
+    session = ReviewSession.open(path, label="kind", id_column="item")
+    session.set_settings(FitSettings(kernel="linear", C=1, folds=2))
+    win = MainWindow(session, reporter=MessageLog())
+    qtbot.addWidget(win)
+    win.show()
+    qtbot.waitUntil(
+        lambda: session.latest is not None and not win.runner.is_running, timeout=60_000
+    )
+    hint = win.minimumSizeHint()
+    assert hint.width() <= 1280 and hint.height() <= 720, hint
+    # The full name is still there to read, in the tooltip.
+    assert names[8] in win.classes_label.toolTip()
