@@ -321,3 +321,16 @@ def test_long_class_names_do_not_widen_the_window(qtbot, tmp_path):
     assert hint.width() <= 1280 and hint.height() <= 720, hint
     # The full name is still there to read, in the tooltip.
     assert names[8] in win.classes_label.toolTip()
+
+
+def test_a_window_larger_than_the_screen_is_brought_inside_it(qtbot):
+    from reviewer.gui import window_layout
+
+    w = QWidget()
+    qtbot.addWidget(w)
+    w.resize(5000, 4000)
+    w.move(-300, -200)
+    w.show()
+    window_layout.fit_to_screen(w)
+    area = w.screen().availableGeometry()
+    assert area.contains(w.frameGeometry())
