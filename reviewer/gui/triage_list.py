@@ -74,7 +74,7 @@ class TriageList(QWidget):
         for name in values.REVIEW_NAMES:
             self.state_filter.addItem(review_text(name), name)
         for combo in (self.zone_filter, self.class_filter, self.state_filter):
-            _compact(combo, 9)
+            _compact(combo, 7)
         self.id_filter = QLineEdit()
         self.id_filter.setObjectName("id_filter")
         self.id_filter.setPlaceholderText("find id…")
