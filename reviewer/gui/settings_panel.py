@@ -17,6 +17,7 @@ from PySide6.QtWidgets import (
 
 from reviewer.core.errors import SettingsError
 from reviewer.core.values import KERNELS, SCORES, FitSettings
+from reviewer.gui.help_text import ranking_words
 
 _SCORE_TEXT = {"heldout": "held-out slack", "training": "training slack"}
 
@@ -64,9 +65,20 @@ class SettingsPanel(QWidget):
         self.refit_button = QPushButton("Refit  (F5)")
         self.refit_button.clicked.connect(self.refit_clicked)
         layout.addWidget(self.refit_button)
+        self.ranking = QLabel("")
+        self.ranking.setObjectName("hint")
+        self.ranking.setWordWrap(True)
+        layout.addWidget(self.ranking)
         layout.addStretch(1)
+        self.score.currentIndexChanged.connect(self._say_ranking)
+        self._say_ranking()
         self.kernel.currentTextChanged.connect(self._sync)
         self._sync()
+
+    def _say_ranking(self, *_: object) -> None:
+        self.ranking.setText(
+            "The list is ranked by " + ranking_words(str(self.score.currentData())) + "."
+        )
 
     def _sync(self) -> None:
         manual = self.kernel.currentText() != "auto"
