@@ -16,7 +16,6 @@ from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QCloseEvent, QShowEvent
 from PySide6.QtWidgets import (
     QDialog,
-    QFileDialog,
     QInputDialog,
     QLabel,
     QMainWindow,
@@ -26,17 +25,17 @@ from PySide6.QtWidgets import (
 )
 
 from reviewer.core.door import ReviewSession
-from reviewer.core.errors import ReviewerError, SourceChangedError
+from reviewer.core.errors import ReviewerError
 from reviewer.core.values import FitSettings
 from reviewer.gui import actions as action_table
 from reviewer.gui import dialogs, window_layout
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.help_text import CAUTION
+from reviewer.gui.opening import Opener
 from reviewer.gui.reporting import DialogReporter, Reporter
-from reviewer.gui.roles_dialog import RolesDialog
 from reviewer.gui.row_panel import RowPanel
 from reviewer.gui.settings_panel import SettingsPanel
-from reviewer.gui.tasks import FitTasks, TaskStrip, open_on_worker, preview_on_worker
+from reviewer.gui.tasks import FitTasks, TaskStrip
 from reviewer.gui.triage_list import TriageList
 
 
@@ -142,6 +141,7 @@ class MainWindow(QMainWindow):
         self.toolbar.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
         action_table.build_toolbar(self.toolbar, self.actions_by_id)
         self.addToolBar(self.toolbar)
+        self.opener = Opener(self, self.task_strip, self._error, [self.menuBar(), self.toolbar])
         self._default_state = self.saveState(window_layout.LAYOUT_VERSION)
         window_layout.default_sizes(self, [self.settings_dock, self.views_slot], self.row_dock)
         if remember_layout:
@@ -354,34 +354,10 @@ class MainWindow(QMainWindow):
             self.refit(settings)
 
     # ---- opening ---------------------------------------------------------------------------
-    def _start_folder(self) -> str:
-        if self.session is not None:
-            return str(self.session.loaded.source.path.parent)
-        recent = dialogs.recent_files()
-        return str(Path(recent[0]).parent) if recent else ""
-
     def choose_file(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(
-            self,
-            "Open a labelled table",
-            self._start_folder(),
-            "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls);;All files (*)",
-        )
-        if path:
-            self.open_path(Path(path))
-
-    def ask_roles(self, path: Path) -> tuple[str, str | None, dict[str, str]] | None:
-        """Show the column-roles dialog for ``path``; None when the reviewer cancels."""
-        try:
-            with self._busy():
-                preview = preview_on_worker(self.task_strip, path)
-        except ReviewerError as exc:
-            self._error(str(exc))
-            return None
-        dlg = RolesDialog(preview, self)
-        if dlg.exec() != QDialog.DialogCode.Accepted:
-            return None
-        return dlg.choices()
+        path = self.opener.choose_file(self.session)
+        if path is not None:
+            self.open_path(path)
 
     def open_path(
         self,
@@ -393,7 +369,7 @@ class MainWindow(QMainWindow):
         """Open ``path``: the roles dialog first when no label is given. True when opened."""
         overrides: dict[str, str] | None = None
         if label is None:
-            chosen = self.ask_roles(Path(path))
+            chosen = self.opener.ask_roles(Path(path))
             if chosen is None:
                 return False
             label, id_column, overrides = chosen
@@ -407,30 +383,11 @@ class MainWindow(QMainWindow):
         session_path: str | os.PathLike[str] | None = None,
         overrides: dict[str, str] | None = None,
     ) -> bool:
-        kwargs: dict[str, Any] = dict(
-            label=label, id_column=id_column, session_path=session_path, overrides=overrides
-        )
-        try:
-            with self._busy():
-                session = open_on_worker(self.task_strip, path, **kwargs)
-        except SourceChangedError as exc:
-            choice = dialogs.ask_source_changed(self, str(exc))
-            if choice is None:
-                return False
-            try:
-                with self._busy():
-                    session = open_on_worker(self.task_strip, path, **kwargs, **{choice: True})
-            except ReviewerError as exc2:
-                self._error(str(exc2))
-                return False
-        except ReviewerError as exc:
-            self._error(str(exc))
+        session = self.opener.open(Path(path), label, id_column, session_path, overrides)
+        if session is None:
             return False
         self.set_session(session)
         return True
-
-    def _busy(self) -> _Busy:
-        return _Busy(self)
 
     # ---- export, help, errors --------------------------------------------------------------
     def export_dialog(self) -> None:
@@ -501,18 +458,3 @@ class MainWindow(QMainWindow):
             self.session.close()
             self.session = None
         super().closeEvent(event)
-
-
-class _Busy:
-    """Menus and toolbar off while a file opens: no second open or export meanwhile."""
-
-    def __init__(self, window: MainWindow) -> None:
-        self.window = window
-
-    def __enter__(self) -> None:
-        self.window.menuBar().setEnabled(False)
-        self.window.toolbar.setEnabled(False)
-
-    def __exit__(self, *exc: object) -> None:
-        self.window.menuBar().setEnabled(True)
-        self.window.toolbar.setEnabled(True)

@@ -263,7 +263,7 @@ def test_export_defaults_to_the_data_folder_and_browse_reads(qtbot, tmp_path, mo
 
 def test_open_dialog_starts_in_the_open_files_folder(qtbot, tmp_path, monkeypatch):
     win = demo_window(qtbot, tmp_path)
-    from reviewer.gui import main_window
+    from reviewer.gui import opening
 
     asked = {}
 
@@ -271,7 +271,7 @@ def test_open_dialog_starts_in_the_open_files_folder(qtbot, tmp_path, monkeypatc
         asked["folder"] = folder
         return "", ""
 
-    monkeypatch.setattr(main_window.QFileDialog, "getOpenFileName", fake_open)
+    monkeypatch.setattr(opening.QFileDialog, "getOpenFileName", fake_open)
     win.actions_by_id["open"].trigger()
     assert Path(asked["folder"]) == tmp_path
 
