@@ -5,7 +5,7 @@ VENV := .venv
 PY := $(VENV)/bin/python
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test lint format bench screenshot clean
+.PHONY: demo test lint format bench bench-full screenshot clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -31,8 +31,12 @@ format: $(STAMP)
 	$(VENV)/bin/ruff format .
 	$(VENV)/bin/ruff check --fix .
 
+# Every benchmark's smoke mode (a minute or two); bench-full writes tests/benchmarks/results/.
 bench: $(STAMP)
 	QT_QPA_PLATFORM=offscreen $(PY) -m tests.benchmarks.run_all
+
+bench-full: $(STAMP)
+	QT_QPA_PLATFORM=offscreen $(PY) -m tests.benchmarks.run_all --full
 
 screenshot: $(STAMP)
 	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png --views assets

@@ -6,6 +6,8 @@ Codes are what files carry; `display_name` gives the one on-screen name for each
 
 from __future__ import annotations
 
+import re
+from collections.abc import Iterable
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
@@ -146,6 +148,30 @@ REASONS = (
     "model is wrong here",
 )
 """Ready-made reasons the window offers; any free text is accepted as well."""
+
+# OWASP's CSV-injection guidance: a cell beginning with one of these is run as a formula by
+# common spreadsheets. A plain decimal number (optional sign) is read as a number instead.
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
+
+
+def looks_like_formula(text: str) -> bool:
+    """True when a spreadsheet would run ``text`` as a formula (see FORMULA_START)."""
+    return text.startswith(FORMULA_START) and _NUMBER.fullmatch(text) is None
+
+
+def formula_warning(values: Iterable[object], what: str) -> str | None:
+    """One warning naming up to three ``values`` that a spreadsheet would run as formulas."""
+    found = sorted({str(v) for v in values if v is not None and looks_like_formula(str(v))})
+    if not found:
+        return None
+    shown = ", ".join(repr(v) for v in found[:3]) + (" ..." if len(found) > 3 else "")
+    return (
+        f"{len(found):,} {what} begin like a spreadsheet formula ({shown}); they are kept "
+        "exactly in the cleaned file and the scan output, so take care opening those in a "
+        "spreadsheet (the audit CSV neutralises them)"
+    )
+
 
 _DISPLAY = {
     "wrong_side": "wrong side",

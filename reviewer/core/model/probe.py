@@ -18,6 +18,7 @@ from reviewer.core.data.dataset import prepare_dataset
 from reviewer.core.data.loading import LoadedTable, label_strings
 from reviewer.core.errors import InputError, SettingsError
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.plain import plain
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import FitSettings
 
@@ -65,7 +66,7 @@ class ProbeResult:
             "top": self.top,
             "auroc": self.auroc,
             "average_precision": self.average_precision,
-            "settings": {k: _plain(v) for k, v in self.settings.items()},
+            "settings": {k: plain(v) for k, v in self.settings.items()},
             "notes": list(self.notes),
             "flips": [
                 {
@@ -85,12 +86,6 @@ class ProbeResult:
                 )
             ],
         }
-
-
-def _plain(value: Any) -> Any:
-    if isinstance(value, np.generic):
-        return value.item()
-    return value
 
 
 def plant_flips(labels: np.ndarray, rate: float, seed: int) -> tuple[np.ndarray, np.ndarray]:

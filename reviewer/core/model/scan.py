@@ -14,7 +14,7 @@ from reviewer.core.data.loading import LoadedTable
 from reviewer.core.data.roles import ColumnRoles
 from reviewer.core.model.fitting import FitResult, fit_margins
 from reviewer.core.progress import ProgressFn, Reporter
-from reviewer.core.values import FitSettings
+from reviewer.core.values import FitSettings, formula_warning
 
 SCAN_COLUMNS = (
     "row_id",
@@ -63,6 +63,9 @@ def scan_table(
     )
     roles, labels, ids = data.roles, data.labels, data.ids
     fit = fit_margins(data.X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
+    warning = formula_warning(labels, "labels in the data")
+    if warning:
+        fit.summary.notes.append(warning)
     groups = conflicting_duplicates(loaded.frame, roles, labels)
     if groups:
         shown = "; ".join(", ".join(str(ids[r]) for r in g[:4]) for g in groups[:3])

@@ -79,7 +79,7 @@ class _FdStream(io.RawIOBase):
     def seekable(self) -> bool:
         return True
 
-    def write(self, data: Any) -> int:  # type: ignore[override]
+    def write(self, data: Any) -> int:
         if self._fd < 0:
             return len(data)  # see _ignore_after_release
         view = memoryview(data).cast("B")
@@ -88,7 +88,7 @@ class _FdStream(io.RawIOBase):
             done += os.write(self._fd, view[done:])
         return done
 
-    def readinto(self, buffer: Any) -> int:  # type: ignore[override]
+    def readinto(self, buffer: Any) -> int:
         chunk = os.read(self._fd, len(buffer))
         buffer[: len(chunk)] = chunk
         return len(chunk)

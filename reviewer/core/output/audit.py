@@ -11,13 +11,13 @@ import csv
 import io
 import json
 import os
-import re
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 from reviewer.core.output.atomic import atomic_write_bytes
 from reviewer.core.plain import plain
+from reviewer.core.values import looks_like_formula
 
 __all__ = ["AUDIT_COLUMNS", "neutralise_formula", "write_audit_csv", "write_audit_jsonl"]
 
@@ -38,19 +38,11 @@ AUDIT_COLUMNS: tuple[str, ...] = (
     "target",
 )
 
-# OWASP's CSV-injection guidance: a cell beginning with one of these is run as a formula by
-# common spreadsheets; a leading single quote makes it plain text there.
-_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
-# A plain decimal number (optional sign, digits, point, exponent): a spreadsheet reads it as
-# a number, not a formula, so "-1.5" or "+3" stay as they are.
-_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
-
 
 def neutralise_formula(text: str) -> str:
-    """``text`` with a leading single quote if a spreadsheet would run it as a formula."""
-    if text.startswith(_FORMULA_START) and _NUMBER.fullmatch(text) is None:
-        return "'" + text
-    return text
+    """``text`` with a leading single quote if a spreadsheet would run it as a formula
+    (OWASP's CSV-injection guidance; plain numbers such as "-1.5" stay as they are)."""
+    return "'" + text if looks_like_formula(text) else text
 
 
 def _columns(events: Sequence[Mapping[str, Any]]) -> list[str]:

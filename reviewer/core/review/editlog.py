@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 
 from reviewer.core.errors import SessionError
+from reviewer.core.plain import plain
 from reviewer.core.values import (
     ACTIONS,
     CONFIRM,
@@ -59,19 +60,6 @@ def utc_now() -> str:
     """The current time as ISO 8601 UTC with milliseconds, e.g. 2026-12-01T21:55:10.123Z."""
     now = _dt.datetime.now(_dt.timezone.utc)
     return now.strftime("%Y-%m-%dT%H:%M:%S.") + f"{now.microsecond // 1000:03d}Z"
-
-
-def plain(value: Any) -> Any:
-    """A label as a plain JSON-friendly Python value; NaN, NaT, NA and None become None."""
-    if isinstance(value, np.generic):
-        value = value.item()
-    if value is None:
-        return None
-    try:
-        missing = bool(value != value)  # NaN and NaT are not equal to themselves
-    except (TypeError, ValueError):  # pandas' NA refuses to be a bool: missing as well
-        missing = True
-    return None if missing else value
 
 
 @dataclass(frozen=True, kw_only=True, slots=True)

@@ -15,13 +15,14 @@ new settings".
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
 from reviewer.core.errors import SessionError
 from reviewer.core.model.fitting import FitResult, fit_margins
+from reviewer.core.plain import plain
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.review.sessionfile import FitRecord
 from reviewer.core.values import ROW_COLUMNS, FitSettings, FitSummary
@@ -122,7 +123,7 @@ def apply_fit(session: ReviewSession, job: FitJob, pair: FitPair | FitResult) ->
 def _save(session: ReviewSession, slot: str, result: FitResult) -> None:
     if not session.read_only:
         session.file.save_fit(
-            slot, result.settings.to_dict(), _jsonable(result.summary.to_dict()), result.rows
+            slot, result.settings.to_dict(), plain(result.summary.to_dict()), result.rows
         )
 
 
@@ -161,15 +162,3 @@ def _as_result(record: FitRecord | None, n_rows: int) -> FitResult | None:
         settings=FitSettings.from_dict(record.settings),
         summary=FitSummary.from_dict(record.summary),
     )
-
-
-def _jsonable(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, float) and not np.isfinite(value):
-        return None
-    return value

@@ -35,33 +35,25 @@ def export(
         raise SourceChangedError(
             f"{src.path} changed on disk since it was opened; reopen it before exporting"
         )
-    protect = [src.path, session.session_path]
-    written = [
-        ex.export_cleaned(
-            src,
-            session.roles.label,
-            list(session.labels),
-            session.excluded,
-            out,
-            source_labels=list(session.source_labels),
-            keep_excluded=keep_excluded,
-            overwrite=overwrite,
-        )
-    ]
-    events = [e.to_dict() for e in session.events()]
-    if audit:
-        writer = (
-            ex.write_audit_jsonl
-            if str(audit).lower().endswith((".jsonl", ".json"))
-            else ex.write_audit_csv
-        )
-        written.append(writer(events, audit, overwrite=overwrite, protect=protect))
-    if report:
-        summary = summary_for_report(session, written)
-        if images:
-            summary["images"] = dict(images)
-        written.append(ex.write_summary_html(summary, report, overwrite=overwrite, protect=protect))
-    return written
+    summary = summary_for_report(session) if report else None
+    if summary is not None and images:
+        summary["images"] = dict(images)
+    return ex.export_set(
+        src,
+        session.roles.label,
+        list(session.labels),
+        session.excluded,
+        out,
+        source_labels=list(session.source_labels),
+        events=[e.to_dict() for e in session.events()],
+        audit=audit,
+        report=report,
+        summary=summary,
+        keep_excluded=keep_excluded,
+        overwrite=overwrite,
+        protect=[session.session_path],
+        session_path=session.session_path,
+    )
 
 
 def summary_for_report(session: ReviewSession, written: Sequence[Path] = ()) -> dict[str, Any]:
@@ -84,11 +76,22 @@ def summary_for_report(session: ReviewSession, written: Sequence[Path] = ()) -> 
     }
     if written:
         summary["cleaned_path"] = str(written[0])
+    if session.latest is not None:
+        # The figures are drawn from these: the slack the ranking uses, now and before.
+        summary["heldout_slack"] = session.latest.rows["heldout_slack"].to_numpy()
+        summary["slack"] = session.latest.rows["slack"].to_numpy()
+    if session.baseline is not None:
+        summary["baseline_heldout_slack"] = session.baseline.rows["heldout_slack"].to_numpy()
+        summary["baseline_slack"] = session.baseline.rows["slack"].to_numpy()
     comparison = session.comparison()
     if comparison is not None:
         summary["metrics"] = comparison.metrics
         if comparison.metrics_new is not None:
             summary["metrics_new_settings"] = comparison.metrics_new
+            summary["settings_by_side"] = {
+                "before and after": comparison.before_settings,
+                "edits and new settings": comparison.new_settings,
+            }
         summary["changed_rows"] = [
             {"row_id": str(session.ids[r]), **{k: v for k, v in ch.items() if k != "row"}}
             for r, ch in zip(

@@ -127,6 +127,10 @@ class ReviewSession:
         self._norms: ClassNorms | None = None
         self._projection: tuple[np.ndarray, np.ndarray] | None = None
         self.warnings.extend(fits.load_saved_fits(self))
+        warning = values.formula_warning(self.source_labels, "labels in the data")
+        if warning:
+            self.warnings.append(warning)
+        self._warned_formula = warning is not None
 
     # ---- opening ---------------------------------------------------------------------------
     @staticmethod
@@ -183,7 +187,8 @@ class ReviewSession:
 
     # ---- listeners ---------------------------------------------------------------------------
     def subscribe(self, listener: Listener) -> None:
-        """``listener(kind, payload)`` is called after "edited", "fitted" and "settings" changes."""
+        """``listener(kind, payload)`` is called after "edited", "fitted" and "settings" changes,
+        and with "warning" (a message) when a new label would run as a spreadsheet formula."""
         self._listeners.append(listener)
 
     def _announce(self, kind: str, payload: Any = None) -> None:
@@ -286,6 +291,9 @@ class ReviewSession:
         label = str(label).strip()
         if not label:
             raise SessionError("a new label cannot be empty")
+        if not self._warned_formula and values.looks_like_formula(label):
+            self._warned_formula = True
+            self._announce("warning", values.formula_warning([label], "new labels"))
         return self._edit(values.RELABEL, rows, label=label, reason=reason, note=note)
 
     def exclude(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:

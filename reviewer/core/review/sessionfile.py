@@ -9,9 +9,9 @@ either wholly there or absent. WAL rather than a rollback journal because a read
 command line exporting, a second window looking) can read while the writer commits,
 and a commit is one append instead of journal + database writes.
 
-Single writer: the writer holds ``fcntl.flock`` (``msvcrt.locking`` on Windows) on a
-sidecar ``<file>.lock``; the OS drops it when the process dies, so a killed session never
-leaves a stale lock. Readers take no lock.
+Single writer: the writer holds ``fcntl.flock`` on the session file itself (see
+`writerlock.py`); the OS drops it when the process dies, so a killed session never leaves
+a stale lock. Readers take no lock. The schema and its migrations are in `schema.py`.
 """
 
 from __future__ import annotations
@@ -23,15 +23,17 @@ import json
 import os
 import sqlite3
 import struct
-import sys
 import threading
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from reviewer.core.errors import SessionError, SessionLockedError
+from reviewer.core.errors import SessionError
+from reviewer.core.plain import plain
 from reviewer.core.review.editlog import Event, read_legacy_names, utc_now
+from reviewer.core.review.schema import MIGRATIONS, READABLE_FROM, schema_version
+from reviewer.core.review.writerlock import _Lock
 from reviewer.core.values import LEGACY_NAMES
 
 APPLICATION_ID = 0x4D524731  # "MRG1": marks a SQLite file as one of ours
@@ -58,72 +60,6 @@ _CONNECT: dict[str, Any] = {
 }
 
 
-def _migrate_0_to_1(conn: sqlite3.Connection) -> None:
-    # One statement at a time: executescript() would commit the caller's transaction.
-    script = """
-        CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
-        CREATE TABLE events (
-            seq INTEGER PRIMARY KEY,
-            time TEXT NOT NULL,
-            reviewer TEXT NOT NULL,
-            action TEXT NOT NULL,
-            target INTEGER,
-            reason TEXT NOT NULL,
-            note TEXT NOT NULL,
-            per_row TEXT NOT NULL
-        );
-        CREATE TABLE fits (
-            fit_id INTEGER PRIMARY KEY,
-            time TEXT NOT NULL,
-            slot TEXT NOT NULL,
-            last_seq INTEGER NOT NULL,
-            settings TEXT NOT NULL,
-            summary TEXT NOT NULL
-        );
-        CREATE TABLE fit_rows (
-            slot TEXT PRIMARY KEY CHECK (slot IN ('baseline', 'latest')),
-            fit_id INTEGER NOT NULL REFERENCES fits(fit_id),
-            format TEXT NOT NULL,
-            data BLOB NOT NULL
-        );
-    """
-    for statement in script.split(";"):
-        if statement.strip():
-            conn.execute(statement)
-
-
-def _migrate_1_to_2(conn: sqlite3.Connection) -> None:
-    # A third fit slot, "edits": the edited labels fitted with the baseline's settings.
-    # SQLite cannot change a CHECK constraint in place, so the table is copied.
-    for statement in (
-        """CREATE TABLE fit_rows_2 (
-            slot TEXT PRIMARY KEY CHECK (slot IN ('baseline', 'latest', 'edits')),
-            fit_id INTEGER NOT NULL REFERENCES fits(fit_id),
-            format TEXT NOT NULL,
-            data BLOB NOT NULL
-        )""",
-        "INSERT INTO fit_rows_2 (slot, fit_id, format, data) "
-        "SELECT slot, fit_id, format, data FROM fit_rows",
-        "DROP TABLE fit_rows",
-        "ALTER TABLE fit_rows_2 RENAME TO fit_rows",
-    ):
-        conn.execute(statement)
-
-
-MIGRATIONS: dict[int, Callable[[sqlite3.Connection], None]] = {
-    1: _migrate_0_to_1,
-    2: _migrate_1_to_2,
-}
-READABLE_FROM = 1
-"""The oldest schema this code can read without upgrading it (read-only opens need that)."""
-"""Schema version -> function that brings a file from version-1 up to it (run in a transaction)."""
-
-
-def schema_version() -> int:
-    """The newest schema version this code writes."""
-    return max(MIGRATIONS)
-
-
 @dataclass(frozen=True)
 class FitRecord:
     """One saved fit. `rows` is the per-row DataFrame for slot loads, None in the history."""
@@ -135,72 +71,6 @@ class FitRecord:
     settings: dict[str, Any]
     summary: dict[str, Any]
     rows: Any = None
-
-
-class _Lock:
-    """Exclusive, non-blocking OS lock on the session file itself; released when the
-    process dies.
-
-    The lock is on the file (its inode), not on a name: a second writer that reaches the
-    same file through a symbolic link, a hard link or another relative path is refused.
-    flock(2) locks are separate from the POSIX byte-range locks SQLite takes, so the two
-    do not disturb each other; the descriptor is closed only after SQLite's connection.
-    Windows has no flock: a sidecar file named after the resolved path is locked there.
-    """
-
-    def __init__(self, db_path: Path) -> None:
-        resolved = db_path.resolve()
-        self.path = (
-            resolved.with_name(resolved.name + ".lock") if sys.platform == "win32" else resolved
-        )
-        self._fd: int | None = None
-
-    def acquire(self, db_path: Path) -> None:
-        _drop_old_sidecar(db_path)
-        flags = os.O_RDWR | (os.O_CREAT if sys.platform == "win32" else 0)
-        fd = os.open(self.path, flags, 0o644)
-        try:
-            if sys.platform == "win32":  # pragma: no cover - exercised on Windows only
-                import msvcrt
-
-                msvcrt.locking(fd, msvcrt.LK_NBLCK, 1)
-            else:
-                import fcntl
-
-                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except OSError as exc:
-            os.close(fd)
-            raise SessionLockedError(
-                f"session file {db_path} is open for writing elsewhere (another window or "
-                "process has it); close it there or open this one read-only"
-            ) from exc
-        self._fd = fd
-
-    def release(self) -> None:
-        if self._fd is not None:
-            os.close(self._fd)  # closing the descriptor drops the lock
-            self._fd = None
-
-
-def _drop_old_sidecar(db_path: Path) -> None:
-    """Version 0.1 locked a ``.lock`` file beside the session and left it there; remove it
-    unless a 0.1 process still holds it."""
-    old = db_path.with_name(db_path.name + ".lock")
-    if sys.platform == "win32" or not old.is_file():
-        return
-    import fcntl
-
-    try:
-        fd = os.open(old, os.O_RDWR)
-    except OSError:
-        return
-    try:
-        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        old.unlink()
-    except OSError:
-        pass  # held by a running 0.1 process, or not ours to remove
-    finally:
-        os.close(fd)
 
 
 def _location_writable(path: Path) -> bool:
@@ -625,7 +495,9 @@ class SessionFile:
 
 
 def _json_value(value: Any) -> Any:
-    # numpy scalars that slipped into an event (labels, slack) are stored as plain values.
-    if hasattr(value, "item") and callable(value.item):
-        return value.item()
-    raise TypeError(f"{value!r} of type {type(value).__name__} cannot be stored")
+    # numpy scalars that slipped into an event (labels, slack) are stored as plain values;
+    # json.dumps calls this only for what it cannot encode itself.
+    out = plain(value)
+    if out is value:
+        raise TypeError(f"{value!r} of type {type(value).__name__} cannot be stored")
+    return out

@@ -117,7 +117,8 @@ def test_export_through_the_session_changes_only_labels(data: Path, tmp_path: Pa
         audit = tmp_path / "audit.csv"
         report = tmp_path / "summary.html"
         written = s.export(out, audit=audit, report=report)
-        assert [p.name for p in written] == ["clean.csv", "audit.csv", "summary.html"]
+        names = ["clean.csv", "audit.csv", "summary.html", "clean.csv.manifest.json"]
+        assert [p.name for p in written] == names
         with pytest.raises(Exception, match=r"source|data file"):
             s.export(data, overwrite=True)
     source = pd.read_csv(data, dtype=str, keep_default_na=False)
