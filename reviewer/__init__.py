@@ -1,8 +1,8 @@
 """Margin Reviewer: rank rows of a labelled table by soft-margin slack and review them.
 
-The notebook door: ``ReviewSession`` (open a table, decide, undo, fit, export), ``FitSettings``
-and the project's error types. They are imported on first use, so ``import reviewer`` stays
-quick for the command line.
+The notebook door: ``scan`` and ``probe`` (one call on a DataFrame or a file), ``ReviewSession``
+(open a table, decide, undo, fit, export), ``FitSettings`` and the project's error types.
+They are imported on first use, so ``import reviewer`` stays quick for the command line.
 """
 
 from __future__ import annotations
@@ -12,6 +12,8 @@ from typing import TYPE_CHECKING, Any
 from reviewer._version import __version__
 
 _LAZY = {
+    "scan": "reviewer.api",
+    "probe": "reviewer.api",
     "ReviewSession": "reviewer.core.door",
     "FitSettings": "reviewer.core.values",
     "ReviewerError": "reviewer.core.errors",
@@ -36,9 +38,12 @@ __all__ = [
     "SettingsError",
     "SourceChangedError",
     "__version__",
+    "probe",
+    "scan",
 ]
 
 if TYPE_CHECKING:
+    from reviewer.api import probe, scan
     from reviewer.core.door import ReviewSession
     from reviewer.core.errors import (
         Cancelled,

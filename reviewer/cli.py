@@ -5,12 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import Any
 
 from reviewer._version import __version__
 
-DEMO_DIR = Path(__file__).resolve().parent.parent / "demo_data"
+DEMO_DIR = Path(__file__).resolve().parent / "demo_data"
 
 
 class _Parser(argparse.ArgumentParser):
@@ -71,6 +72,10 @@ def build_parser() -> argparse.ArgumentParser:
     p_scan.add_argument("--score", choices=["heldout", "training"], default="heldout")
     p_scan.add_argument("--seed", type=int, default=0)
     p_scan.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
+    p_scan.add_argument("--summary", help="also write the run's summary as JSON to this file")
+    p_scan.add_argument(
+        "--quiet", action="store_true", help="no progress bar and no summary on standard error"
+    )
     p_scan.add_argument(
         "--treat-as-classes",
         action="store_true",
@@ -99,6 +104,7 @@ def build_parser() -> argparse.ArgumentParser:
     p_probe.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
     p_probe.add_argument("--out", help="also write the result as JSON to this file")
     p_probe.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
+    p_probe.add_argument("--quiet", action="store_true", help="no progress bar on standard error")
     p_probe.add_argument(
         "--treat-as-classes",
         action="store_true",
@@ -165,14 +171,18 @@ def _scan(args: argparse.Namespace) -> int:
     ).validate()
     if args.out:
         check_scan_target(args.out, protect=[Path(args.data)])
-    outcome = scan_file(
-        args.data,
-        args.label,
-        id_column=args.id_column,
-        settings=settings,
-        treat_as_classes=args.treat_as_classes,
-        sheet=args.sheet,
-    )
+    if args.summary:
+        check_scan_target(args.summary, protect=[Path(args.data)])
+    with _progress_bar(args) as progress:
+        outcome = scan_file(
+            args.data,
+            args.label,
+            id_column=args.id_column,
+            settings=settings,
+            treat_as_classes=args.treat_as_classes,
+            sheet=args.sheet,
+            progress=progress,
+        )
     table = outcome.table
     if args.out:
         write_scan_table(table, args.out, protect=[Path(args.data)])
@@ -192,8 +202,80 @@ def _scan(args: argparse.Namespace) -> int:
         *[f"note: {n}" for n in s.notes],
         f"time: {time.perf_counter() - started:.2f} s",
     ]
-    sys.stderr.write("\n".join(lines) + "\n")
+    if args.summary:
+        _write_summary(args, outcome, time.perf_counter() - started)
+    if not args.quiet:
+        sys.stderr.write("\n".join(lines) + "\n")
     return 0
+
+
+def _write_summary(args: argparse.Namespace, outcome: Any, seconds: float) -> None:
+    """The run's summary as JSON, for pipelines (keys listed in the README)."""
+    import json
+
+    from reviewer.core.door import write_text
+
+    s, roles = outcome.fit.summary, outcome.roles
+    doc = {
+        "data": str(Path(args.data).resolve()),
+        "label": args.label,
+        "id": args.id_column,
+        "rows": s.n_rows,
+        "fitted": s.n_fitted,
+        "unlabelled": s.n_unlabelled,
+        "classes": s.class_counts,
+        "zones": s.zone_counts,
+        "supports": s.support_counts,
+        "settings": outcome.fit.settings.to_dict(),
+        "heldout_accuracy": s.heldout_accuracy,
+        "heldout_balanced_accuracy": s.heldout_balanced_accuracy,
+        "columns": {
+            **{c: "numeric" for c in roles.numeric},
+            **{c: "categorical" for c in roles.categorical},
+            **{c: f"ignored: {why}" for c, why in roles.ignored.items()},
+        },
+        "notes": list(s.notes),
+        "out": str(Path(args.out).resolve()) if args.out else None,
+        "seconds": round(seconds, 3),
+    }
+    write_text(args.summary, json.dumps(doc, indent=1, default=str) + "\n", protect=[args.data])
+
+
+class _progress_bar:
+    """A progress bar on standard error when it is a terminal (and not --quiet); else nothing."""
+
+    def __init__(self, args: argparse.Namespace) -> None:
+        self.enabled = sys.stderr.isatty() and not getattr(args, "quiet", False)
+        self.bar: Any = None
+
+    def __enter__(self) -> Callable[[float, str], None] | None:
+        if not self.enabled:
+            return None
+        import shutil
+
+        from tqdm import tqdm
+
+        # A terminal that reports no size (some pseudo-terminals) would hide the bar.
+        size = shutil.get_terminal_size((80, 24))
+        self.bar = tqdm(
+            total=1000,
+            file=sys.stderr,
+            leave=False,
+            ncols=max(40, size.columns or 80),
+            nrows=max(2, size.lines or 24),
+            bar_format="{desc} {bar} {percentage:3.0f}%",
+        )
+        return self.update
+
+    def update(self, fraction: float, message: str) -> None:
+        self.bar.n = int(max(0.0, min(1.0, fraction)) * 1000)
+        if message:
+            self.bar.set_description_str(message[:48], refresh=False)
+        self.bar.refresh()
+
+    def __exit__(self, *exc: object) -> None:
+        if self.bar is not None:
+            self.bar.close()
 
 
 def _column_lines(roles: object) -> list[str]:
@@ -212,27 +294,32 @@ def _column_lines(roles: object) -> list[str]:
 def _probe(args: argparse.Namespace) -> int:
     import json
 
-    from reviewer.core.door import format_probe, probe_file
+    from reviewer.core.door import check_scan_target, format_probe, probe_file, write_text
     from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
     settings = FitSettings(
         kernel=args.kernel, C=args.C, folds=args.folds, seed=args.seed
     ).validate()
-    result = probe_file(
-        args.data,
-        args.label,
-        id_column=args.id_column,
-        settings=settings,
-        rate=args.rate,
-        seed=args.seed,
-        treat_as_classes=args.treat_as_classes,
-        sheet=args.sheet,
-    )
+    if args.out:
+        check_scan_target(args.out, protect=[Path(args.data)])
+    with _progress_bar(args) as progress:
+        result = probe_file(
+            args.data,
+            args.label,
+            id_column=args.id_column,
+            settings=settings,
+            rate=args.rate,
+            seed=args.seed,
+            treat_as_classes=args.treat_as_classes,
+            sheet=args.sheet,
+            progress=progress,
+        )
     sys.stdout.write(format_probe(result) + "\n")
     if args.out:
-        Path(args.out).write_text(json.dumps(result.to_dict(), indent=1), encoding="utf-8")
-    sys.stderr.write(f"time: {time.perf_counter() - started:.2f} s\n")
+        write_text(args.out, json.dumps(result.to_dict(), indent=1), protect=[args.data])
+    if not args.quiet:
+        sys.stderr.write(f"time: {time.perf_counter() - started:.2f} s\n")
     return 0
 
 

@@ -15,7 +15,7 @@ import pandas as pd
 import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "demo_data" / "coffee_lots.csv"
+DEMO = ROOT / "reviewer" / "demo_data" / "coffee_lots.csv"
 FAST = ["--kernel", "linear", "--C", "1", "--folds", "3"]
 
 

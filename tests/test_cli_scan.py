@@ -12,7 +12,7 @@ import pandas as pd
 import pytest
 
 ROOT = Path(__file__).resolve().parent.parent
-DEMO = ROOT / "demo_data"
+DEMO = ROOT / "reviewer" / "demo_data"
 SCAN_COLUMNS = [
     "row_id",
     "label",

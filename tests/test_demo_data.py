@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-DEMO = Path(__file__).resolve().parent.parent / "demo_data"
+DEMO = Path(__file__).resolve().parent.parent / "reviewer" / "demo_data"
 FILES = (
     "coffee_lots.csv",
     "coffee_lots_binary.csv",
@@ -30,7 +30,7 @@ CATEGORICAL = ["origin_region", "processing"]
 
 
 def _load_generator():
-    # demo_data is not a package; load the script the way a user would find it.
+    # Load the script from its file, the way a user would run it.
     spec = importlib.util.spec_from_file_location("demo_generate", DEMO / "generate.py")
     assert spec is not None and spec.loader is not None
     module = importlib.util.module_from_spec(spec)

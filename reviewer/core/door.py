@@ -7,19 +7,20 @@ The window and the command line import this module, ``reviewer.core.values`` and
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
-from reviewer.core.data.loading import load_table
+from reviewer.core.data.loading import LoadedTable, load_table, table_from_frame
 from reviewer.core.data.roles import KINDS
 from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
 from reviewer.core.model.scan import ScanOutcome, scan_table
 from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
-from reviewer.core.output.scantable import check_scan_target, write_scan_table
+from reviewer.core.output.scantable import check_scan_target, write_scan_table, write_text
+from reviewer.core.progress import Reporter
 from reviewer.core.review.compare import CAUTION as COMPARISON_CAUTION
 from reviewer.core.review.compare import Comparison, score_on_reference
 from reviewer.core.review.plotdata import (
@@ -59,6 +60,7 @@ __all__ = [
     "CurveSeries",
     "FitJob",
     "Histogram",
+    "LoadedTable",
     "ProbeResult",
     "ProjectionPoints",
     "ReviewSession",
@@ -72,17 +74,22 @@ __all__ = [
     "default_session_path",
     "export_session",
     "format_probe",
+    "load_table",
     "metrics_table",
     "next_open_position",
     "probe_file",
+    "probe_loaded",
     "read_reference",
     "row_mask",
     "scan_file",
+    "scan_loaded",
     "score_reference",
     "session_projection",
     "slack_above",
     "slack_histogram",
+    "table_from_frame",
     "write_scan_table",
+    "write_text",
 ]
 
 
@@ -97,13 +104,15 @@ def scan_file(
     progress: Callable[[float, str], None] | None = None,
 ) -> ScanOutcome:
     """Load a table and rank its rows: the ``scan`` command's work."""
-    loaded = load_table(data, sheet=sheet, progress=progress)
+    report = Reporter(progress)
+    loaded = load_table(data, sheet=sheet, progress=report.slice(0.0, 0.1))
     return scan_table(
         loaded,
         label,
         id_column=id_column,
         settings=settings or FitSettings(),
         treat_as_classes=treat_as_classes,
+        progress=report.slice(0.1, 1.0),
     )
 
 
@@ -117,9 +126,11 @@ def probe_file(
     seed: int = 0,
     treat_as_classes: bool = False,
     sheet: str | None = None,
+    progress: Callable[[float, str], None] | None = None,
 ) -> ProbeResult:
     """Load a table, plant known flips in a copy and measure how many the ranking finds."""
-    loaded = load_table(data, sheet=sheet)
+    report = Reporter(progress)
+    loaded = load_table(data, sheet=sheet, progress=report.slice(0.0, 0.1))
     return probe_table(
         loaded,
         label,
@@ -128,6 +139,55 @@ def probe_file(
         rate=rate,
         seed=seed,
         treat_as_classes=treat_as_classes,
+        progress=report.slice(0.1, 1.0),
+    )
+
+
+def scan_loaded(
+    loaded: LoadedTable,
+    label: str,
+    *,
+    id_column: str | None = None,
+    settings: FitSettings | None = None,
+    overrides: Mapping[str, str] | None = None,
+    treat_as_classes: bool = False,
+    progress: Callable[[float, str], None] | None = None,
+) -> ScanOutcome:
+    """Rank the rows of a table already loaded (from a file or a DataFrame)."""
+    return scan_table(
+        loaded,
+        label,
+        id_column=id_column,
+        settings=settings or FitSettings(),
+        overrides=overrides,
+        treat_as_classes=treat_as_classes,
+        progress=progress,
+    )
+
+
+def probe_loaded(
+    loaded: LoadedTable,
+    label: str,
+    *,
+    id_column: str | None = None,
+    settings: FitSettings | None = None,
+    rate: float = 0.05,
+    seed: int = 0,
+    overrides: Mapping[str, str] | None = None,
+    treat_as_classes: bool = False,
+    progress: Callable[[float, str], None] | None = None,
+) -> ProbeResult:
+    """The probe on a table already loaded."""
+    return probe_table(
+        loaded,
+        label,
+        id_column=id_column,
+        settings=settings or FitSettings(),
+        rate=rate,
+        seed=seed,
+        overrides=overrides,
+        treat_as_classes=treat_as_classes,
+        progress=progress,
     )
 
 

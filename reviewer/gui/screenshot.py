@@ -21,7 +21,7 @@ from reviewer.gui.app import demo_copy, make_app
 from reviewer.gui.main_window import MainWindow
 from reviewer.gui.reporting import MessageLog
 
-DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
+DEMO = Path(__file__).resolve().parents[1] / "demo_data" / "coffee_lots.csv"
 SIZE = (1366, 768)
 VIEW_SIZE = (900, 620)
 VIEW_FILES = {

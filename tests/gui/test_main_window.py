@@ -16,7 +16,7 @@ from reviewer.core.values import FitSettings
 from reviewer.gui.main_window import MainWindow
 from reviewer.gui.reporting import MessageLog
 
-DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
+DEMO = Path(__file__).resolve().parents[2] / "reviewer" / "demo_data" / "coffee_lots.csv"
 FAST = FitSettings(kernel="rbf", C=10, folds=3)
 
 

@@ -14,7 +14,7 @@ from reviewer.gui.main_window import MainWindow
 from reviewer.gui.reporting import MessageLog
 from reviewer.gui.roles_dialog import NO_ID, PREVIEW_MAX_WIDTH, RolesDialog
 
-DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
+DEMO = Path(__file__).resolve().parents[2] / "reviewer" / "demo_data" / "coffee_lots.csv"
 
 
 @pytest.fixture

@@ -15,7 +15,7 @@ from reviewer.core.values import FitSettings
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.views import ViewsPanel, _fmt, render_views_png
 
-DEMO = "demo_data/coffee_lots.csv"
+DEMO = "reviewer/demo_data/coffee_lots.csv"
 
 
 @pytest.fixture(scope="module")

@@ -27,7 +27,7 @@ from reviewer.gui.main_window import MainWindow
 from reviewer.gui.reporting import MessageLog
 from reviewer.gui.widgets import ElidedLabel
 
-DEMO = Path(__file__).resolve().parents[2] / "demo_data" / "coffee_lots.csv"
+DEMO = Path(__file__).resolve().parents[2] / "reviewer" / "demo_data" / "coffee_lots.csv"
 FAST = FitSettings(kernel="rbf", C=10, folds=3)
 LAPTOP = (1366, 768)
 

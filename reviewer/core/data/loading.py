@@ -368,3 +368,31 @@ def label_strings(values: pd.Series) -> np.ndarray:
             s = str(texts[i]).strip()
             out[i] = s if s else None
     return out
+
+
+def table_from_frame(frame: pd.DataFrame, name: str = "<DataFrame>") -> LoadedTable:
+    """A table already in memory, read like a file: columns get unique text names, the index
+    is set aside (row positions 0..n-1), and the fingerprint is a SHA-256 of the content."""
+    if not isinstance(frame, pd.DataFrame):
+        raise InputError(f"expected a pandas DataFrame or a file path, got {type(frame).__name__}")
+    if frame.shape[1] == 0:
+        raise InputError(f"{name}: the DataFrame has no columns")
+    if len(frame) == 0:
+        raise InputError(f"{name}: the DataFrame has no rows")
+    copy = _tidy_columns(frame.reset_index(drop=True).copy(), Path(name))
+    try:
+        hashed = pd.util.hash_pandas_object(copy, index=False).to_numpy()
+        digest = hashlib.sha256(hashed.tobytes()).hexdigest()
+    except TypeError:  # unhashable cells (lists): fall back to their text
+        digest = hashlib.sha256(copy.astype(str).to_csv().encode()).hexdigest()
+    info = SourceInfo(
+        path=Path(name),
+        kind="frame",
+        sha256=digest,
+        delimiter=None,
+        encoding=None,
+        sheet=None,
+        n_rows=len(copy),
+        columns=tuple(copy.columns),
+    )
+    return LoadedTable(frame=copy, source=info)

@@ -41,3 +41,16 @@ def write_scan_table(
             stream.write(table.to_csv(index=False).encode("utf-8"))
 
     return atomic_write(out, write, overwrite=True, protect=protect)
+
+
+def write_text(
+    out: str | os.PathLike[str], text: str, *, protect: Iterable[str | os.PathLike[str]] = ()
+) -> Path:
+    """A small text result (a run summary, a probe report as JSON), written atomically;
+    never onto a file in ``protect``."""
+    return atomic_write(
+        out,
+        lambda stream: stream.write(text.encode("utf-8")),
+        overwrite=True,
+        protect=[Path(p) for p in protect],
+    )

@@ -15,7 +15,7 @@ from reviewer.core.errors import ReviewerError, SettingsError
 from reviewer.core.model.probe import CAUTION, plant_flips, probe_labels, probe_table
 from reviewer.core.values import FitSettings
 
-DEMO = Path(__file__).resolve().parents[3] / "demo_data" / "coffee_lots.csv"
+DEMO = Path(__file__).resolve().parents[3] / "reviewer" / "demo_data" / "coffee_lots.csv"
 
 
 def clean_blobs(n_per_class: int = 80, seed: int = 3) -> tuple[np.ndarray, np.ndarray]:

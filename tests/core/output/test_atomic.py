@@ -260,7 +260,9 @@ def test_command_line_export_onto_an_existing_file_names_the_option(tmp_path):
 
     root = Path(__file__).resolve().parents[3]
     data = tmp_path / "lots.csv"
-    pd.read_csv(root / "demo_data" / "coffee_lots.csv", nrows=60).to_csv(data, index=False)
+    pd.read_csv(root / "reviewer" / "demo_data" / "coffee_lots.csv", nrows=60).to_csv(
+        data, index=False
+    )
     with ReviewSession.open(data, label="grade", id_column="lot_id") as session:
         session.exclude([0])
         session_file = session.session_path

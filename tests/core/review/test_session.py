@@ -17,7 +17,7 @@ from reviewer.core.review.session import ReviewSession
 from reviewer.core.values import FitSettings
 
 ROOT = Path(__file__).resolve().parents[3]
-DEMO = ROOT / "demo_data" / "coffee_lots.csv"
+DEMO = ROOT / "reviewer" / "demo_data" / "coffee_lots.csv"
 QUICK = FitSettings(kernel="linear", C=1.0, folds=3)
 
 

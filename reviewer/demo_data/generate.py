@@ -1,6 +1,6 @@
 """Seeded generator for the invented green-coffee lot register used as demo data.
 
-Run `python demo_data/generate.py` to rewrite the CSV files beside this script, or import
+Run `python reviewer/demo_data/generate.py` to rewrite the CSV files beside this script, or import
 `generate` to build a table in memory. Only the standard library, numpy and pandas are used,
 so the files can be rebuilt without installing the project.
 """
