@@ -106,11 +106,11 @@ def scan_file(
     """Load a table and rank its rows: the ``scan`` command's work."""
     report = Reporter(progress)
     loaded = load_table(data, sheet=sheet, progress=report.slice(0.0, 0.1))
-    return scan_table(
+    return scan_loaded(
         loaded,
         label,
         id_column=id_column,
-        settings=settings or FitSettings(),
+        settings=settings,
         treat_as_classes=treat_as_classes,
         progress=report.slice(0.1, 1.0),
     )
@@ -131,11 +131,11 @@ def probe_file(
     """Load a table, plant known flips in a copy and measure how many the ranking finds."""
     report = Reporter(progress)
     loaded = load_table(data, sheet=sheet, progress=report.slice(0.0, 0.1))
-    return probe_table(
+    return probe_loaded(
         loaded,
         label,
         id_column=id_column,
-        settings=settings or FitSettings(),
+        settings=settings,
         rate=rate,
         seed=seed,
         treat_as_classes=treat_as_classes,

@@ -9,6 +9,7 @@ import csv
 import hashlib
 import io
 import os
+import threading
 import zipfile
 from dataclasses import dataclass
 from pathlib import Path
@@ -128,10 +129,14 @@ def load_table(
     path: str | os.PathLike[str],
     *,
     sheet: str | None = None,
+    max_rows: int | None = None,
     progress: ProgressFn | None = None,
-    cancel=None,
+    cancel: threading.Event | None = None,
 ) -> LoadedTable:
-    """Load ``path`` as a table. Raises InputError for anything that is not a usable table."""
+    """Load ``path`` as a table. Raises InputError for anything that is not a usable table.
+
+    ``max_rows`` reads only the first rows (a preview); the fingerprint is still of the
+    whole file, and ``source.n_rows`` then counts the rows read."""
     report = Reporter(progress, cancel)
     p = Path(path).expanduser()
     if not p.exists():
@@ -154,16 +159,16 @@ def load_table(
     sheets: tuple[str, ...] = ()
     kind = "delimited" if compression else _detect_kind(p, raw)
     if kind == "parquet":
-        frame = _read_parquet(p, raw)
+        frame = _read_parquet(p, raw, max_rows)
         delimiter = encoding = used_sheet = None
     elif kind == "excel":
-        frame, used_sheet, sheets = _read_excel(p, raw, sheet)
+        frame, used_sheet, sheets = _read_excel(p, raw, sheet, max_rows)
         delimiter = encoding = None
     else:
         encoding = detect_encoding(raw, p)
         text_sample = raw[:200_000].decode(encoding, errors="replace")
         delimiter = detect_delimiter(text_sample, p)
-        frame = _read_delimited(p, raw, encoding, delimiter, report.slice(0.1, 1.0))
+        frame = _read_delimited(p, raw, encoding, delimiter, report.slice(0.1, 1.0), max_rows)
         used_sheet = None
     frame = _tidy_columns(frame, p)
     if frame.shape[1] == 0:
@@ -257,8 +262,15 @@ def detect_delimiter(text: str, p: Path | str = "<data>") -> str:
     return best
 
 
-def _read_delimited(p: Path, raw: bytes, encoding: str, delimiter: str, report: Reporter):
-    total_lines = max(raw.count(b"\n"), 1)
+def _read_delimited(
+    p: Path,
+    raw: bytes,
+    encoding: str,
+    delimiter: str,
+    report: Reporter,
+    max_rows: int | None = None,
+) -> pd.DataFrame:
+    total_lines = max(raw.count(b"\n"), 1) if max_rows is None else max_rows
     options = dict(
         sep=delimiter,
         encoding=encoding,
@@ -266,7 +278,8 @@ def _read_delimited(p: Path, raw: bytes, encoding: str, delimiter: str, report: 
         keep_default_na=True,
         skipinitialspace=False,
         engine="c",
-        chunksize=CHUNK_ROWS,
+        chunksize=CHUNK_ROWS if max_rows is None else max_rows,
+        nrows=max_rows,
         low_memory=False,
     )
     chunks = []
@@ -291,15 +304,24 @@ def _read_delimited(p: Path, raw: bytes, encoding: str, delimiter: str, report: 
     return frame.reset_index(drop=True)
 
 
-def _read_parquet(p: Path, raw: bytes) -> pd.DataFrame:
+def _read_parquet(p: Path, raw: bytes, max_rows: int | None = None) -> pd.DataFrame:
     try:
+        if max_rows is not None:
+            import pyarrow as pa
+            import pyarrow.parquet as pq
+
+            batches = pq.ParquetFile(io.BytesIO(raw)).iter_batches(batch_size=max_rows)
+            first = next(batches, None)
+            if first is None:
+                return pd.read_parquet(io.BytesIO(raw)).reset_index(drop=True)
+            return pa.Table.from_batches([first]).to_pandas().reset_index(drop=True)
         return pd.read_parquet(io.BytesIO(raw)).reset_index(drop=True)
     except Exception as exc:  # pyarrow raises several unrelated types for damaged files
         raise InputError(f"{p}: damaged or unreadable Parquet file ({_first_line(exc)})") from exc
 
 
 def _read_excel(
-    p: Path, raw: bytes, sheet: str | None
+    p: Path, raw: bytes, sheet: str | None, max_rows: int | None = None
 ) -> tuple[pd.DataFrame, str, tuple[str, ...]]:
     try:
         book = pd.ExcelFile(io.BytesIO(raw), engine="openpyxl")
@@ -314,7 +336,7 @@ def _read_excel(
         raise InputError(f"{p}: no sheet named {sheet!r}; sheets are {', '.join(names)}")
     chosen = sheet or names[0]
     try:
-        frame = pd.read_excel(book, sheet_name=chosen, na_values=MISSING_MARKERS)
+        frame = pd.read_excel(book, sheet_name=chosen, na_values=MISSING_MARKERS, nrows=max_rows)
     except Exception as exc:
         raise InputError(f"{p}: sheet {chosen!r} cannot be read ({_first_line(exc)})") from exc
     return frame.reset_index(drop=True), chosen, tuple(names)

@@ -23,19 +23,6 @@ from reviewer.core.model.tuning import choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings, FitSummary
 
-ROW_COLUMNS = (
-    "margin",
-    "slack",
-    "heldout_margin",
-    "heldout_slack",
-    "alpha",
-    "zone",
-    "support",
-    "model_label",
-    "score",
-    "rank",
-)
-
 
 @dataclass
 class FitResult:

@@ -6,6 +6,7 @@ absent, never half written, and never lands on the source data file.
 
 from __future__ import annotations
 
+import io
 import os
 from collections.abc import Sequence
 from pathlib import Path
@@ -20,6 +21,26 @@ from reviewer.core.output.delimited import cleaned_delimited
 from reviewer.core.output.tables import cleaned_excel, cleaned_parquet, text_or_none
 
 __all__ = ["export_cleaned"]
+
+
+def compress(data: bytes, compression: str, name: str) -> bytes:
+    """``data`` compressed as ``compression`` (gzip, bz2, xz, or a one-file zip)."""
+    import bz2
+    import gzip
+    import lzma
+    import zipfile
+
+    if compression == "gzip":
+        return gzip.compress(data, mtime=0)
+    if compression == "bz2":
+        return bz2.compress(data)
+    if compression == "xz":
+        return lzma.compress(data)
+    buffer = io.BytesIO()
+    member = name[: -len(".zip")] if name.lower().endswith(".zip") else name
+    with zipfile.ZipFile(buffer, "w", zipfile.ZIP_DEFLATED) as archive:
+        archive.writestr(member, data)
+    return buffer.getvalue()
 
 
 def export_cleaned(
@@ -79,6 +100,8 @@ def export_cleaned(
         data = cleaned_delimited(
             source, label_column, new, old, excluded, keep_excluded, flag_column
         )
+        if source.compression:  # written back compressed the same way
+            data = compress(data, source.compression, Path(out_path).name)
         return atomic_write_bytes(out_path, data, overwrite=overwrite, protect=(src_path,))
     writer = {"parquet": cleaned_parquet, "excel": cleaned_excel}.get(kind)
     if writer is not None:

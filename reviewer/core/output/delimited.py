@@ -13,8 +13,8 @@ from pathlib import Path
 
 import numpy as np
 
-from reviewer.core.data.loading import MISSING_MARKERS, SourceInfo
-from reviewer.core.errors import ExportError
+from reviewer.core.data.loading import MISSING_MARKERS, SourceInfo, decompress
+from reviewer.core.errors import ExportError, InputError
 
 __all__ = ["cleaned_delimited"]
 
@@ -132,6 +132,11 @@ def cleaned_delimited(
         raw = where.read_bytes()
     except OSError as exc:
         raise ExportError(f"Cannot read the source {where}: {exc.strerror or exc}") from exc
+    if source.compression:
+        try:
+            raw = decompress(raw, source.compression, where)
+        except InputError as exc:
+            raise ExportError(f"Cannot export: {exc}") from exc
     bom, codec = _bom_and_codec(raw, source.encoding, where)
     body = raw[len(bom) :]
     try:

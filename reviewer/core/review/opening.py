@@ -68,11 +68,20 @@ class TablePreview:
     remembered: dict[str, Any] | None  # roles saved in an existing session file
 
 
+PREVIEW_SAMPLE_ROWS = 5_000
+"""The preview guesses roles from this many leading rows, not the whole file."""
+
+
 def preview_table(
-    data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None
+    data_path: str | os.PathLike[str],
+    *,
+    rows: int = 20,
+    sample: int = PREVIEW_SAMPLE_ROWS,
+    progress: ProgressFn | None = None,
 ) -> TablePreview:
-    """Load a file and guess its roles, for the column-roles dialog."""
-    loaded = load_table(data_path, progress=progress)
+    """Read the first ``sample`` rows of a file and guess its roles, for the column-roles
+    dialog (which shows the first ``rows``). The fingerprint is of the whole file."""
+    loaded = load_table(data_path, max_rows=max(rows, sample), progress=progress)
     frame = loaded.frame
     label = guess_label_column(frame)
     ident = guess_id_column(frame, label)

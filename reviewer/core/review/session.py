@@ -137,7 +137,8 @@ class ReviewSession:
     def preview(
         data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None
     ) -> TablePreview:
-        """Load a file and guess its roles, for the column-roles dialog."""
+        """Read the leading rows of a file and guess its roles, for the column-roles dialog
+        (safe on a worker thread)."""
         return opening.preview_table(data_path, rows=rows, progress=progress)
 
     @classmethod

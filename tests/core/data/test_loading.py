@@ -199,3 +199,19 @@ def test_unlabelled_rows_are_kept_and_left_out_of_the_fit(tmp_path: Path) -> Non
     assert (rows.loc[[3, 17, 40], "rank"] == 0).all()
     assert rows.loc[[3, 17, 40], "model_label"].notna().all()
     assert np.isfinite(rows["margin"].drop(index=[3, 17, 40])).all()
+
+
+def test_a_preview_reads_only_the_leading_rows_of_each_format(tmp_path: Path) -> None:
+    frame = pd.DataFrame({"x": np.arange(3000.0), "label": ["a", "b", "c"] * 1000})
+    csv_path, pq_path = tmp_path / "t.csv", tmp_path / "t.parquet"
+    frame.to_csv(csv_path, index=False)
+    frame.to_parquet(pq_path, row_group_size=500)
+    xlsx_path = tmp_path / "t.xlsx"
+    frame.head(300).to_excel(xlsx_path, index=False)
+    for path, n in ((csv_path, 3000), (pq_path, 3000), (xlsx_path, 300)):
+        head = load_table(path, max_rows=120)
+        assert len(head.frame) == 120, path
+        assert head.frame["x"].tolist() == list(np.arange(120.0))
+        # The fingerprint is the whole file's, the same as a full load's.
+        assert head.source.sha256 == load_table(path).source.sha256
+        assert len(load_table(path).frame) == n
