@@ -174,7 +174,7 @@ class CCurvePlot(QWidget):
             p.clear()
             legend.clear()
         self.chosen_lines = []
-        self.curves: list[tuple[door.CurveSeries, str, pg.PlotDataItem]] = []
+        self.curves = []
         styles = [Qt.PenStyle.SolidLine, Qt.PenStyle.DashLine, Qt.PenStyle.DotLine]
         self.stack.setCurrentIndex(1 if self.series else 0)
         words = ("solid", "dashed", "dotted")

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import functools
+from collections.abc import Callable
 from pathlib import Path
 
 from PySide6.QtCore import QSettings
@@ -128,9 +130,8 @@ class HelpDialog(QDialog):
 
 def recent_files() -> list[str]:
     value = app_settings().value(RECENT_KEY, [])
-    if isinstance(value, str):
-        value = [value]
-    return [str(v) for v in (value or []) if Path(str(v)).exists()]
+    items: list[object] = [value] if isinstance(value, str) else list(value or [])  # type: ignore[call-overload]
+    return [str(v) for v in items if Path(str(v)).exists()]
 
 
 def remember_recent(path: Path) -> None:
@@ -139,12 +140,13 @@ def remember_recent(path: Path) -> None:
     app_settings().setValue(RECENT_KEY, files)
 
 
-def fill_recent_menu(menu: QMenu, open_path) -> None:
+def fill_recent_menu(menu: QMenu, open_path: Callable[[Path], object]) -> None:
     """Fill ``menu`` with the recent files; choosing one calls ``open_path(Path)``."""
     menu.clear()
     files = recent_files()
     if not files:
         act = menu.addAction("(none yet)")
-        act.setEnabled(False)
+        if act is not None:
+            act.setEnabled(False)
     for f in files:
-        menu.addAction(f, lambda f=f: open_path(Path(f)))
+        menu.addAction(f, functools.partial(open_path, Path(f)))

@@ -132,7 +132,13 @@ class MainWindow(QMainWindow):
         view = self.menus["View"]
         first = view.actions()[0] if view.actions() else None
         for dock in (self.settings_dock, self.views_slot, self.row_dock):
-            view.insertAction(first, dock.toggleViewAction())
+            toggle = dock.toggleViewAction()
+            if toggle is None:
+                continue
+            if first is None:
+                view.addAction(toggle)
+            else:
+                view.insertAction(first, toggle)
         if first is not None:
             view.insertSeparator(first)
         self.toolbar = QToolBar("Main")

@@ -149,8 +149,8 @@ class RolesDialog(QDialog):
     def choices(self) -> tuple[str, str | None, dict[str, str]]:
         """(label column, id column or None, overrides for the kinds that differ from the guess)."""
         label = self.label_combo.currentText()
-        ident = self.id_combo.currentText()
-        ident = None if ident == NO_ID else ident
+        chosen_id = self.id_combo.currentText()
+        ident = None if chosen_id == NO_ID else chosen_id
         overrides: dict[str, str] = {}
         for col, combo in self.kind_combos.items():
             if col in (label, ident):

@@ -127,7 +127,9 @@ class TriageList(QWidget):
         self.reason_combo.addItems(["", *values.REASONS])
         _compact(self.reason_combo, 10)
         self.reason_combo.setToolTip("Goes with the next decision only (choose or type)")
-        self.reason_combo.lineEdit().setPlaceholderText("for the next decision")
+        edit = self.reason_combo.lineEdit()
+        if edit is not None:
+            edit.setPlaceholderText("for the next decision")
         deck.addWidget(self.reason_combo, 1)
         lay.addLayout(deck)
         bus.rows_filter.connect(self._on_bus_filter)
@@ -388,8 +390,7 @@ class TriageList(QWidget):
         s = self.session
         if s is None or self.model.rowCount() == 0:
             return
-        views = [self.model.view_row(r) for r in rows]
-        views = [v for v in views if v is not None]
+        views = [v for r in rows if (v := self.model.view_row(r)) is not None]
         start = (max(views) + 1) if views else 0
         target = door.next_open_position(s.review[self.model.view_order()], start)
         if target is not None:

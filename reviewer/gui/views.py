@@ -13,7 +13,7 @@ once and the others when they are next shown.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -52,7 +52,9 @@ def _fmt(value: Any, signed: bool = False) -> str:
     if isinstance(value, (bool, np.bool_)):
         return str(bool(value))
     if isinstance(value, (int, np.integer)) or (
-        isinstance(value, (float, np.floating)) and float(value).is_integer() and abs(value) < 1e12
+        isinstance(value, (float, np.floating))
+        and float(value).is_integer()
+        and abs(float(value)) < 1e12
     ):
         return f"{int(value):+,}" if signed else f"{int(value):,}"
     if isinstance(value, (float, np.floating)):
@@ -212,9 +214,10 @@ class CompareView(QWidget):
             ]
             if new is not None:
                 value = new.get(line.metric)
+                before = line.before
                 change = (
-                    float(value) - float(line.before)
-                    if _is_number(value) and _is_number(line.before)
+                    float(cast(float, value)) - float(cast(float, before))
+                    if _is_number(value) and _is_number(before)
                     else None
                 )
                 cells += [_fmt(value), _fmt(change, True)]
@@ -338,6 +341,9 @@ class CompareView(QWidget):
             self.reference_label.setText(str(exc))
             return
         self.reference_scores = out
+        if out is None:
+            self.reference_label.setText("Reference loaded; fit first to score it.")
+            return
         b, a = out["before"], out["after"]
         self.reference_label.setText(
             f"<b>Against {self.reference_name}</b> ({out['matched']:,} rows matched by id"
@@ -389,8 +395,9 @@ class ViewsPanel(QTabWidget):
         bus.labels_changed.connect(self.mark_stale)
         self.refresh()
 
-    def views(self) -> list[QWidget]:
-        return [self.widget(i) for i in range(self.count())]
+    def views(self) -> list[Any]:
+        """The four view widgets, in tab order (each has ``refresh()``)."""
+        return [w for i in range(self.count()) if (w := self.widget(i)) is not None]
 
     def refresh(self) -> None:
         """Redraw every view now."""
@@ -406,7 +413,9 @@ class ViewsPanel(QTabWidget):
     def _on_tab(self, index: int) -> None:
         if index in self._stale:
             self._stale.discard(index)
-            self.widget(index).refresh()
+            view: Any = self.widget(index)
+            if view is not None:
+                view.refresh()
 
     def shutdown(self) -> None:
         """Stop background work (the C curve); call from the window's closeEvent."""
