@@ -120,6 +120,11 @@ def build_parser() -> argparse.ArgumentParser:
         "--keep-excluded", action="store_true", help="keep excluded rows, flagged"
     )
     p_export.add_argument("--overwrite", action="store_true", help="replace existing output files")
+
+    p_verify = sub.add_parser(
+        "verify", help="check that an export's files are the ones its manifest lists"
+    )
+    p_verify.add_argument("export", help="the cleaned file, or its .manifest.json")
     return parser
 
 
@@ -135,6 +140,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             return _export(args)
         if args.command == "probe":
             return _probe(args)
+        if args.command == "verify":
+            return _verify(args)
         if args.command in ("demo", "open", None):
             return _window(args)
     except ReviewerError as exc:
@@ -336,6 +343,19 @@ def _export(args: argparse.Namespace) -> int:
     )
     for path in written:
         sys.stderr.write(f"wrote {path}\n")
+    return 0
+
+
+def _verify(args: argparse.Namespace) -> int:
+    from reviewer.core.door import manifest_path_for, verify_manifest
+
+    given = Path(args.export)
+    manifest = given if given.name.endswith(".manifest.json") else manifest_path_for(given)
+    problems = verify_manifest(manifest)
+    if problems:
+        sys.stderr.write(f"error: {manifest}: " + "; ".join(problems) + "\n")
+        return 2
+    sys.stderr.write(f"ok: every file listed in {manifest} is as the export wrote it\n")
     return 0
 
 

@@ -143,3 +143,19 @@ def test_a_parquet_list_column_is_ignored_with_its_reason(tmp_path: Path) -> Non
     ok = run("scan", str(path), "--label", "label", *FAST)
     assert ok.returncode == 0, ok.stderr
     assert "ignored: vec (a list or record per row" in ok.stderr
+
+
+def test_verify_finds_a_changed_or_missing_export_file(tmp_path: Path) -> None:
+    from reviewer.core.review.session import ReviewSession
+
+    data = tmp_path / "lots.csv"
+    data.write_bytes(DEMO.read_bytes())
+    with ReviewSession.open(data, label="grade", id_column="lot_id") as s:
+        s.relabel([0], "exchange")
+        s.export(tmp_path / "clean.csv", audit=tmp_path / "audit.csv")
+    ok = run("verify", str(tmp_path / "clean.csv"))
+    assert ok.returncode == 0 and ok.stderr.startswith("ok:")
+    (tmp_path / "audit.csv").write_text("edited by hand\n")
+    refused(run("verify", str(tmp_path / "clean.csv")), "differs from the one this export wrote")
+    (tmp_path / "audit.csv").unlink()
+    refused(run("verify", str(tmp_path / "clean.csv.manifest.json")), "is missing")

@@ -19,6 +19,7 @@ from reviewer.core.data.roles import KINDS
 from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
 from reviewer.core.model.scan import ScanOutcome, scan_table
 from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
+from reviewer.core.output.manifest import manifest_path_for, verify_manifest
 from reviewer.core.output.scantable import check_scan_target, write_scan_table, write_text
 from reviewer.core.progress import Reporter
 from reviewer.core.review.compare import CAUTION as COMPARISON_CAUTION
@@ -75,6 +76,7 @@ __all__ = [
     "export_session",
     "format_probe",
     "load_table",
+    "manifest_path_for",
     "metrics_table",
     "next_open_position",
     "probe_file",
@@ -88,6 +90,7 @@ __all__ = [
     "slack_above",
     "slack_histogram",
     "table_from_frame",
+    "verify_manifest",
     "write_scan_table",
     "write_text",
 ]
