@@ -93,3 +93,32 @@ def test_choices_reach_the_session(qtbot, data, monkeypatch):
     qtbot.addWidget(dlg)
     assert dlg.label_combo.currentText() == "processing"
     assert dlg.kind_combos["screen_size"].currentText() == "categorical"
+
+
+def test_the_preview_is_read_off_the_gui_thread(qtbot, data, monkeypatch):
+    import threading
+
+    seen = {}
+    real_preview = ReviewSession.preview
+
+    def spy(path, **kwargs):
+        seen["thread"] = threading.current_thread()
+        return real_preview(path, **kwargs)
+
+    monkeypatch.setattr(ReviewSession, "preview", staticmethod(spy))
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
+    qtbot.addWidget(win)
+
+    def cancel():
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        # The dialog shows the first rows only.
+        assert dlg.head_model.rowCount() == 20
+        dlg.reject()
+
+    QTimer.singleShot(200, cancel)
+    assert not win.open_path(data)
+    assert seen["thread"] is not threading.main_thread()
