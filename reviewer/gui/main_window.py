@@ -245,6 +245,8 @@ class MainWindow(QMainWindow):
             self.settings_panel.show_used(s.latest.settings if s and s.latest else None)
             self.row_panel.refresh()
             self.bus.fit_changed.emit()
+        elif kind == "warning" and payload:
+            self.reporter.warning(self, str(payload))
         self._update_status()
         self._update_enabled()
 
@@ -413,15 +415,9 @@ class MainWindow(QMainWindow):
         s = self.session
         if s is None:
             return []
-        images: dict[str, bytes] = {}
-        if report:
-            from reviewer.gui.views import render_views_png
-
-            images = render_views_png(s, self.views_panel)
+        # The report draws its own figures from the session's numbers (no widget pictures).
         try:
-            written = s.export(
-                out, audit=audit, report=report, keep_excluded=keep_excluded, images=images
-            )
+            written = s.export(out, audit=audit, report=report, keep_excluded=keep_excluded)
         except ReviewerError as exc:
             self._error(str(exc))
             return []

@@ -13,9 +13,11 @@ from PySide6.QtWidgets import QMessageBox, QWidget
 
 
 class Reporter(Protocol):
-    """Tells the reviewer that something went wrong (one line, our own words)."""
+    """Tells the reviewer that something went wrong, or needs care (our own words)."""
 
     def error(self, parent: QWidget | None, message: str) -> None: ...
+
+    def warning(self, parent: QWidget | None, message: str) -> None: ...
 
 
 class DialogReporter:
@@ -23,6 +25,9 @@ class DialogReporter:
 
     def error(self, parent: QWidget | None, message: str) -> None:
         QMessageBox.warning(parent, "Margin Reviewer", message)
+
+    def warning(self, parent: QWidget | None, message: str) -> None:
+        QMessageBox.information(parent, "Margin Reviewer", message)
 
 
 class MessageLog:
@@ -32,6 +37,9 @@ class MessageLog:
         self.messages: list[str] = []
 
     def error(self, parent: QWidget | None, message: str) -> None:
+        self.messages.append(message)
+
+    def warning(self, parent: QWidget | None, message: str) -> None:
         self.messages.append(message)
 
     @property

@@ -230,3 +230,16 @@ def test_gui_stays_responsive_during_a_large_fit(qtbot, tmp_path):
     assert was_running, "the fit ended before the GUI could be watched"
     gaps = np.diff(ticks)
     assert gaps.max() < 0.25, f"the GUI thread stalled for {gaps.max():.2f} s"
+
+
+def test_a_formula_like_new_label_is_told_to_the_reviewer_once(qtbot, tmp_path):
+    # OWASP CSV injection: a label beginning with "=" would run in a spreadsheet.
+    win = make_window(qtbot, open_demo(tmp_path))
+    s = win.session
+    row = win.current_row()
+    win.relabel_to("=HYPERLINK(1)")
+    assert s.labels[row] == "=HYPERLINK(1)"  # kept exactly
+    told = [m for m in win.reporter.messages if "spreadsheet formula" in m]
+    assert len(told) == 1
+    win.relabel_to("+again")
+    assert len([m for m in win.reporter.messages if "spreadsheet formula" in m]) == 1
