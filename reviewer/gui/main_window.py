@@ -376,12 +376,13 @@ class MainWindow(QMainWindow):
     ) -> bool:
         """Open ``path``: the roles dialog first when no label is given. True when opened."""
         overrides: dict[str, str] | None = None
+        sheet: str | None = None
         if label is None:
             chosen = self.opener.ask_roles(Path(path))
             if chosen is None:
                 return False
-            label, id_column, overrides = chosen
-        return self.open_session(Path(path), label, id_column, session_path, overrides)
+            label, id_column, overrides, sheet = chosen
+        return self.open_session(Path(path), label, id_column, session_path, overrides, sheet)
 
     def open_session(
         self,
@@ -390,8 +391,9 @@ class MainWindow(QMainWindow):
         id_column: str | None,
         session_path: str | os.PathLike[str] | None = None,
         overrides: dict[str, str] | None = None,
+        sheet: str | None = None,
     ) -> bool:
-        session = self.opener.open(Path(path), label, id_column, session_path, overrides)
+        session = self.opener.open(Path(path), label, id_column, session_path, overrides, sheet)
         if session is None:
             return False
         self.set_session(session)

@@ -8,7 +8,7 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
-from PySide6.QtWidgets import QDialog, QFileDialog, QWidget
+from PySide6.QtWidgets import QDialog, QFileDialog, QInputDialog, QWidget
 
 from reviewer.core.door import ReviewSession
 from reviewer.core.errors import ReviewerError, SourceChangedError
@@ -17,7 +17,8 @@ from reviewer.gui.roles_dialog import RolesDialog
 from reviewer.gui.tasks import TaskStrip, open_on_worker, preview_on_worker
 
 TABLE_FILTER = "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls);;All files (*)"
-Roles = tuple[str, str | None, dict[str, str]]
+Roles = tuple[str, str | None, dict[str, str], str | None]
+"""(label column, id column, kind overrides, workbook sheet)."""
 
 
 class Opener:
@@ -61,16 +62,30 @@ class Opener:
         return Path(path) if path else None
 
     def ask_roles(self, path: Path) -> Roles | None:
-        """The column-roles dialog over a preview read on a worker; None when cancelled."""
+        """The column-roles dialog over a preview read on a worker; None when cancelled.
+        A workbook with several sheets asks for the sheet first."""
         try:
             preview = self._run(lambda: preview_on_worker(self.strip, path))
+            sheets = list(preview.source.sheets)
+            sheet = None
+            if len(sheets) > 1:
+                remembered = (preview.remembered or {}).get("sheet")
+                first = sheets.index(remembered) if remembered in sheets else 0
+                sheet, ok = QInputDialog.getItem(
+                    self.parent, "Sheet", f"{path.name}: the sheet to review", sheets, first, False
+                )
+                if not ok:
+                    return None
+                if sheet != preview.source.sheet:
+                    chosen = sheet
+                    preview = self._run(lambda: preview_on_worker(self.strip, path, chosen))
         except ReviewerError as exc:
             self.report(str(exc))
             return None
         dlg = RolesDialog(preview, self.parent)
         if dlg.exec() != QDialog.DialogCode.Accepted:
             return None
-        return dlg.choices()
+        return (*dlg.choices(), sheet)
 
     def open(
         self,
@@ -79,10 +94,15 @@ class Opener:
         id_column: str | None,
         session_path: str | os.PathLike[str] | None = None,
         overrides: dict[str, str] | None = None,
+        sheet: str | None = None,
     ) -> ReviewSession | None:
         """The opened session, or None (reported, or the reviewer cancelled)."""
         kwargs: dict[str, Any] = dict(
-            label=label, id_column=id_column, session_path=session_path, overrides=overrides
+            label=label,
+            id_column=id_column,
+            session_path=session_path,
+            overrides=overrides,
+            sheet=sheet,
         )
         try:
             return self._run(lambda: open_on_worker(self.strip, path, **kwargs))

@@ -188,11 +188,11 @@ def open_on_worker(strip: TaskStrip, path: Path, **kwargs: Any) -> ReviewSession
         raise
 
 
-def preview_on_worker(strip: TaskStrip, path: Path) -> Any:
-    """The column-roles preview of ``path``, read on a worker."""
+def preview_on_worker(strip: TaskStrip, path: Path, sheet: str | None = None) -> Any:
+    """The column-roles preview of ``path`` (of ``sheet``, for a workbook), read on a worker."""
 
     def job(progress: Any, cancel: Any) -> Any:
-        return ReviewSession.preview(path, progress=progress)
+        return ReviewSession.preview(path, sheet=sheet, progress=progress)
 
     return run_on_worker(strip, f"reading {Path(path).name}…", job, cancellable=False)
 

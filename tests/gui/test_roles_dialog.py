@@ -122,3 +122,38 @@ def test_the_preview_is_read_off_the_gui_thread(qtbot, data, monkeypatch):
     QTimer.singleShot(200, cancel)
     assert not win.open_path(data)
     assert seen["thread"] is not threading.main_thread()
+
+
+def test_a_workbook_asks_for_the_sheet_and_opens_it(qtbot, tmp_path, monkeypatch):
+    import pandas as pd
+    from PySide6.QtWidgets import QInputDialog
+
+    book = tmp_path / "lots.xlsx"
+    with pd.ExcelWriter(book) as writer:
+        pd.DataFrame({"about": ["harvest notes"]}).to_excel(writer, sheet_name="Notes", index=False)
+        pd.read_csv(DEMO).head(150).to_excel(writer, sheet_name="Lots", index=False)
+    asked = {}
+
+    def pick(parent, title, text, items, current, editable):
+        asked["items"] = list(items)
+        return "Lots", True
+
+    monkeypatch.setattr(QInputDialog, "getItem", staticmethod(pick))
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
+    qtbot.addWidget(win)
+
+    def choose():
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        assert "grade" in dlg.preview.columns  # the preview is of the chosen sheet
+        dlg.label_combo.setCurrentText("grade")
+        dlg.id_combo.setCurrentText("lot_id")
+        dlg.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+
+    QTimer.singleShot(300, choose)
+    assert win.open_path(book)
+    assert asked["items"] == ["Notes", "Lots"]
+    assert win.session.loaded.source.sheet == "Lots" and win.session.n_rows == 150
