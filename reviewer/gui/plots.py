@@ -345,7 +345,7 @@ class SlackHistogramPlot(QWidget):
         self.class_combo.clear()
         self.class_combo.addItem("all rows", None)
         for name in self.session.classes:
-            self.class_combo.addItem(f"given label {name}", name)
+            self.class_combo.addItem(f"label {name}", name)
         i = self.class_combo.findData(current)
         self.class_combo.setCurrentIndex(max(i, 0))
         self.class_combo.blockSignals(False)
