@@ -13,7 +13,10 @@ $(STAMP): pyproject.toml
 	$(PY) -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
+# Qt's xcb plugin needs system libraries a fresh Debian lacks: install them (as root) or say
+# which packages and the command, in one line, before the window is tried.
 demo: $(STAMP)
+	$(PY) -m reviewer.gui.platform_check --install
 	$(VENV)/bin/margin-reviewer demo
 
 lint: $(STAMP)
@@ -36,7 +39,7 @@ bench-full: $(STAMP)
 	QT_QPA_PLATFORM=offscreen $(PY) -m tests.benchmarks.run_all --full
 
 screenshot: $(STAMP)
-	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png
+	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png --views assets
 
 clean:
 	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis

@@ -12,7 +12,7 @@ import os
 from collections.abc import Callable, Mapping
 from numbers import Real
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeAlias
 
 import pandas as pd
 
@@ -22,8 +22,8 @@ from reviewer.core.values import KERNELS, FitSettings
 
 __all__ = ["probe", "scan"]
 
-Data = pd.DataFrame | str | os.PathLike[str]
-Progress = Callable[[float, str], None]
+Data: TypeAlias = "pd.DataFrame | str | os.PathLike[str]"
+Progress: TypeAlias = Callable[[float, str], None]
 
 
 def scan(

@@ -11,6 +11,7 @@ from PySide6.QtWidgets import QApplication
 from reviewer.core.door import APP_NAME
 from reviewer.gui import resources
 from reviewer.gui.main_window import MainWindow
+from reviewer.gui.platform_check import check_window_can_start
 
 
 def demo_copy(source: Path, folder: Path | None = None) -> Path:
@@ -48,6 +49,9 @@ def build_window(
     """The window with ``path`` opened as asked (roles dialog when no label is given)."""
     window = MainWindow()
     if path is not None:
+        if demo:
+            # The demo's copy lives in a per-user data folder; exports go where it started.
+            window.export_folder = Path.cwd()
         path = demo_copy(Path(path)) if demo else Path(path)
         window.open_path(path, label=label, id_column=id_column, session_path=session)
     return window
@@ -61,7 +65,13 @@ def run_window(
     session: str | None = None,
     demo: bool = False,
 ) -> int:
-    """Open the review window and run until it closes; returns the exit code."""
+    """Open the review window and run until it closes; returns the exit code.
+
+    Raises WindowCannotStart (a ReviewerError: the command line prints one ``error:`` line)
+    when Qt could not show a window here, before Qt gets the chance to abort the process.
+    """
+    if not isinstance(QApplication.instance(), QApplication):
+        check_window_can_start()
     app = make_app()
     window = build_window(path, label=label, id_column=id_column, session=session, demo=demo)
     window.show()

@@ -35,12 +35,16 @@ ZONES: tuple[str, ...] = ("wrong_side", "inside_margin", "clear")
 ZONE_COLORS: dict[str, str] = {"wrong_side": VERMILION, "inside_margin": ORANGE, "clear": GREY}
 
 STATES: tuple[str, ...] = ("open", "confirmed", "relabelled", "excluded")
+# Relabelled rows are reddish purple, not blue: the selection colour is a light blue, and a
+# relabelled row must not look selected. The Review column carries a symbol as well.
 STATE_COLORS: dict[str, str] = {
     "open": GREY,
     "confirmed": GREEN,
-    "relabelled": BLUE,
+    "relabelled": PURPLE,
     "excluded": INK,
 }
+SELECTION = "#CFE3F3"
+"""The list's selection colour (assets/style.qss), kept apart from every row tint."""
 
 
 def qcolor(color: str | QColor, alpha: int = 255) -> QColor:
@@ -120,7 +124,7 @@ def zone_row_styles(strength: float = 0.22) -> dict[int, tuple[QColor | None, QC
     return styles
 
 
-def state_row_styles(strength: float = 0.22) -> dict[int, tuple[QColor | None, QColor | None]]:
+def state_row_styles(strength: float = 0.28) -> dict[int, tuple[QColor | None, QColor | None]]:
     """Row styles for review states (codes from ``codes_for(s, STATES)``).
 
     Excluded rows get grey text instead of a dark background, so they read as set aside.

@@ -13,20 +13,19 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
-    QHBoxLayout,
+    QGridLayout,
     QLabel,
-    QProgressBar,
     QPushButton,
     QVBoxLayout,
     QWidget,
 )
 
 from reviewer.core import door
-from reviewer.core.door import CURVE_CS
-from reviewer.core.values import REVIEW_NAMES, FitSettings
+from reviewer.core.door import ReviewSession
+from reviewer.core.values import REVIEW_NAMES, display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
-from reviewer.gui.workers import TaskRunner
+from reviewer.gui.widgets import ElidedLabel
 
 # One symbol per review decision (pyqtgraph symbol codes), so decisions read without colour.
 DECISION_SYMBOLS = {"open": "o", "confirmed": "s", "relabelled": "t", "excluded": "x"}
@@ -56,7 +55,7 @@ class ProjectionPlot(QWidget):
 
     def __init__(
         self,
-        session: Any,
+        session: ReviewSession,
         bus: ReviewBus,
         parent: QWidget | None = None,
         *,
@@ -97,15 +96,17 @@ class ProjectionPlot(QWidget):
         )
         self.ring.setZValue(10)
         self.plot.addItem(self.ring)
-        self.legend = pg.LegendItem(offset=(-10, 10), labelTextColor=palette.TEXT)
-        self.legend.setParentItem(self.plot.getViewBox())
-        self.legend.setBrush(pg.mkBrush(255, 255, 255, 210))
-        self._legend_samples: list[pg.ScatterPlotItem] = []
+        # The legend sits under the plot, never over the points.
+        self.legend = QLabel()
+        self.legend.setObjectName("projection_legend")
+        self.legend.setWordWrap(True)
+        self.legend.setTextFormat(Qt.TextFormat.RichText)
         self.info = QLabel()
         self.info.setWordWrap(True)
         layout = QVBoxLayout(self)
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addWidget(self.plot_widget, 1)
+        layout.addWidget(self.legend)
         layout.addWidget(self.info)
         bus.row_selected.connect(self.highlight_row)
 
@@ -163,10 +164,7 @@ class ProjectionPlot(QWidget):
             else f"All {pts.n_total:,} rows drawn."
         )
         note = self.boundary.note if self.boundary else ""
-        self.info.setText(
-            f"{drawn} Fill: given label; thick outline: wrong_side, thin: inside_margin; "
-            "symbol: ○ open, □ confirmed, ▽ relabelled, × excluded. " + note
-        )
+        self.info.setText(f"{drawn} Fill: the current label. " + note)
         self.plot_widget.setToolTip(note)
         if self.selected_row is not None:
             self.highlight_row(self.selected_row)
@@ -189,27 +187,16 @@ class ProjectionPlot(QWidget):
         self.plot.enableAutoRange()
 
     def _draw_legend(self, classes: list[str]) -> None:
-        self.legend.clear()
-        self._legend_samples = []
-        for i, name in enumerate(classes[:8]):
-            sample = pg.ScatterPlotItem(
-                symbol="o", size=9, brush=palette.brush(palette.class_color(i)), pen=None
-            )
-            self._legend_samples.append(sample)
-            self.legend.addItem(sample, name)
-        for name, pen_ in (
-            ("wrong_side", pg.mkPen(palette.qcolor(palette.INK), width=2.4)),
-            ("inside_margin", pg.mkPen(palette.qcolor(palette.TEXT), width=1.2)),
-        ):
-            sample = pg.ScatterPlotItem(symbol="o", size=10, brush=pg.mkBrush("w"), pen=pen_)
-            self._legend_samples.append(sample)
-            self.legend.addItem(sample, name)
-        for name in REVIEW_NAMES[1:]:
-            sample = pg.ScatterPlotItem(
-                symbol=DECISION_SYMBOLS[name], size=9, brush=palette.brush(palette.GREY), pen=None
-            )
-            self._legend_samples.append(sample)
-            self.legend.addItem(sample, name)
+        parts = [
+            f"<span style='color:{palette.class_color(i).name()}'>●</span>&nbsp;{name}"
+            for i, name in enumerate(classes[:8])
+        ]
+        if len(classes) > 8:
+            parts.append(f"… {len(classes) - 8} more")
+        parts.append(f"<b>◯</b>&nbsp;thick ring: {display_name('wrong_side')}")
+        parts.append(f"○&nbsp;thin ring: {display_name('inside_margin')}")
+        parts.append("□ confirmed &nbsp;▽ relabelled &nbsp;× excluded")
+        self.legend.setText(" &nbsp;·&nbsp; ".join(parts))
 
     def drawn_points(self) -> dict[str, np.ndarray]:
         """Every drawn point across the style groups: x, y, row, size and symbol."""
@@ -252,7 +239,9 @@ class SlackHistogramPlot(QWidget):
     Drag the threshold line to narrow the triage list to rows with slack above it.
     """
 
-    def __init__(self, session: Any, bus: ReviewBus, parent: QWidget | None = None) -> None:
+    def __init__(
+        self, session: ReviewSession, bus: ReviewBus, parent: QWidget | None = None
+    ) -> None:
         super().__init__(parent)
         self.session = session
         self.bus = bus
@@ -262,8 +251,9 @@ class SlackHistogramPlot(QWidget):
         self.class_combo = QComboBox()
         self.class_combo.setToolTip("Show every row or the rows of one given class")
         self.source_combo = QComboBox()
-        self.source_combo.addItem("training slack", "slack")
         self.source_combo.addItem("held-out slack", "heldout_slack")
+        self.source_combo.addItem("training slack", "slack")
+        self._source_chosen = False
         self.source_combo.setToolTip(
             "Held-out slack comes from a model that did not see the row (cross-fitting)"
         )
@@ -271,17 +261,23 @@ class SlackHistogramPlot(QWidget):
         self.zero_box.setToolTip("Rows with slack 0 are clear of the margin; their bar is tall")
         self.clear_button = QPushButton("Clear filter")
         self.clear_button.setToolTip("Show every row in the triage list again")
-        top = QHBoxLayout()
-        for w in (
-            QLabel("Rows:"),
-            self.class_combo,
-            QLabel("Slack:"),
-            self.source_combo,
-            self.zero_box,
-        ):
-            top.addWidget(w)
-        top.addStretch(1)
-        top.addWidget(self.clear_button)
+        for combo in (self.class_combo, self.source_combo):
+            combo.setSizeAdjustPolicy(
+                QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon
+            )
+            combo.setMinimumContentsLength(10)
+        self.ranking_label = ElidedLabel("")
+        self.ranking_label.setObjectName("hint")
+        top = QGridLayout()
+        top.addWidget(QLabel("Rows:"), 0, 0)
+        top.addWidget(self.class_combo, 0, 1)
+        top.addWidget(QLabel("Slack:"), 0, 2)
+        top.addWidget(self.source_combo, 0, 3)
+        top.addWidget(self.zero_box, 1, 0, 1, 2)
+        top.addWidget(self.clear_button, 1, 3)
+        top.addWidget(self.ranking_label, 2, 0, 1, 4)
+        top.setColumnStretch(1, 1)
+        top.setColumnStretch(3, 1)
 
         self.plot_widget = pg.PlotWidget()
         self.plot = _white_plot(self.plot_widget)
@@ -307,7 +303,7 @@ class SlackHistogramPlot(QWidget):
             movable=True,
             pen=pg.mkPen(palette.qcolor(palette.VERMILION), width=2.5),
             hoverPen=pg.mkPen(palette.qcolor(palette.VERMILION), width=4),
-            label="filter: ξ > {value:.2f}",
+            label="drag to filter",
             labelOpts={"position": 0.75, "color": palette.VERMILION, "movable": True},
         )
         self.threshold.setToolTip("Drag to show only rows with slack above this line")
@@ -321,9 +317,27 @@ class SlackHistogramPlot(QWidget):
         layout.addWidget(self.plot_widget, 1)
         layout.addWidget(self.info)
         self.class_combo.currentIndexChanged.connect(self._draw)
-        self.source_combo.currentIndexChanged.connect(self._draw)
+        self.source_combo.currentIndexChanged.connect(self._on_source)
+        self.source_combo.activated.connect(self._choose_source)
         self.zero_box.toggled.connect(self._draw)
         self.clear_button.clicked.connect(self.clear_filter)
+
+    def _choose_source(self, _index: int) -> None:
+        self._source_chosen = True  # the reviewer picked one: keep it across fits
+
+    def _on_source(self, _index: int) -> None:
+        if self.last_mask is not None:
+            self.clear_filter()
+        self._draw()
+
+    def ranked_by(self) -> str:
+        """The slack column the ranking uses: held-out unless the settings say training."""
+        s = self.session
+        score = s.latest.settings.score if s.latest is not None else s.settings.score
+        if score == "heldout" and s.latest is not None:
+            if not np.isfinite(s.latest.rows["heldout_slack"].to_numpy(dtype=float)).any():
+                return "slack"  # folds = 0: no held-out values, the ranking falls back
+        return "heldout_slack" if score == "heldout" else "slack"
 
     def refresh(self) -> None:
         current = self.class_combo.currentData()
@@ -331,10 +345,19 @@ class SlackHistogramPlot(QWidget):
         self.class_combo.clear()
         self.class_combo.addItem("all rows", None)
         for name in self.session.classes:
-            self.class_combo.addItem(f"given label {name}", name)
+            self.class_combo.addItem(f"label {name}", name)
         i = self.class_combo.findData(current)
         self.class_combo.setCurrentIndex(max(i, 0))
         self.class_combo.blockSignals(False)
+        ranked = self.ranked_by()
+        if not self._source_chosen:
+            self.source_combo.blockSignals(True)
+            self.source_combo.setCurrentIndex(max(0, self.source_combo.findData(ranked)))
+            self.source_combo.blockSignals(False)
+        self.ranking_label.setText(
+            "The ranking uses "
+            + ("held-out slack." if ranked == "heldout_slack" else "training slack.")
+        )
         self._draw()
 
     def slack_values(self) -> np.ndarray:
@@ -366,7 +389,7 @@ class SlackHistogramPlot(QWidget):
             parts.append(f"{h.n_missing:,} rows without this slack (unlabelled or not scored).")
         parts.append(
             "ξ > 1: on the wrong side of the boundary; 0 < ξ ≤ 1: inside the margin. "
-            "Drag the red line to filter the triage list."
+            "Drag the red line to show only rows above it in the list."
         )
         self.info.setText(" ".join(parts))
 
@@ -376,200 +399,20 @@ class SlackHistogramPlot(QWidget):
         cls = self.class_mask()
         return mask if cls is None else mask & cls
 
+    def source_name(self) -> str:
+        return "held-out ξ" if self.source_combo.currentData() == "heldout_slack" else "ξ"
+
     def _on_threshold(self, *_: Any) -> None:
-        mask = self.filter_mask(float(self.threshold.value()))
+        value = float(self.threshold.value())
+        mask = self.filter_mask(value)
         self.last_mask = mask
         self.bus.rows_filter.emit(mask)
+        # The line says what the list shows now: this filter, with its row count.
+        self.threshold.label.setFormat(
+            f"list: {self.source_name()} > {value:.2f} ({int(mask.sum()):,} rows)"
+        )
 
     def clear_filter(self) -> None:
         self.last_mask = None
         self.bus.rows_filter.emit(None)
-
-
-class CCurvePlot(QWidget):
-    """Cross-validated accuracy, bound support vectors and wrong_side rows across C.
-
-    Computed in the background on the current labels and exclusions; click a point to refit
-    with that C (and gamma).
-    """
-
-    def __init__(self, session: Any, bus: ReviewBus, parent: QWidget | None = None) -> None:
-        super().__init__(parent)
-        self.session = session
-        self.bus = bus
-        self.result: dict | None = None
-        self.Cs: tuple[float, ...] = CURVE_CS  # the grid of C to sweep
-        self.series: list[door.CurveSeries] = []
-        self.curves: list[tuple[door.CurveSeries, str, pg.PlotDataItem]] = []
-        self.runner = TaskRunner(self)
-        self.runner.progress.connect(self._on_progress)
-        self.runner.finished.connect(self._on_finished)
-        self.runner.failed.connect(self._on_failed)
-        self.runner.cancelled.connect(self._on_cancelled)
-
-        self.kernel_combo = QComboBox()
-        self.kernel_combo.addItems(["linear", "rbf", "poly"])
-        self.run_button = QPushButton("Compute curve")
-        self.run_button.setToolTip("Cross-validate a log grid of C on the current labels")
-        self.cancel_button = QPushButton("Cancel")
-        self.cancel_button.setEnabled(False)
-        self.progress_bar = QProgressBar()
-        self.progress_bar.setRange(0, 1000)
-        self.progress_bar.setTextVisible(False)
-        self.status = QLabel("Not computed yet.")
-        self.status.setWordWrap(True)
-        top = QHBoxLayout()
-        for w in (QLabel("Kernel:"), self.kernel_combo, self.run_button, self.cancel_button):
-            top.addWidget(w)
-        top.addWidget(self.progress_bar, 1)
-
-        self.layout_widget = pg.GraphicsLayoutWidget()
-        self.layout_widget.setBackground("w")
-        self.acc_plot = self.layout_widget.addPlot(row=0, col=0)
-        self.count_plot = self.layout_widget.addPlot(row=1, col=0)
-        self.count_plot.setXLink(self.acc_plot)
-        for p, ylabel in ((self.acc_plot, "cross-validated score"), (self.count_plot, "rows")):
-            for side in ("left", "bottom"):
-                p.getAxis(side).setPen(palette.pen(palette.TEXT))
-                p.getAxis(side).setTextPen(palette.pen(palette.TEXT))
-            p.showGrid(x=True, y=True, alpha=0.15)
-            p.setLabel("left", ylabel)
-            p.setLabel("bottom", "log10 C")
-            p.getAxis("left").enableAutoSIPrefix(False)
-        # Legends in a column of their own, so they never cover the curves.
-        self.legends = []
-        for row in (0, 1):
-            legend = pg.LegendItem(labelTextColor=palette.TEXT)
-            self.layout_widget.addItem(legend, row=row, col=1)
-            self.legends.append(legend)
-        self.chosen_lines: list[pg.InfiniteLine] = []
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(2, 2, 2, 2)
-        layout.addLayout(top)
-        layout.addWidget(self.layout_widget, 1)
-        layout.addWidget(self.status)
-        self.run_button.clicked.connect(self.start)
-        self.cancel_button.clicked.connect(self.runner.cancel)
-
-    # ---- background work -------------------------------------------------------------------
-    def refresh(self) -> None:
-        latest = self.session.latest
-        kernel = latest.settings.kernel if latest is not None else self.session.settings.kernel
-        if kernel in ("linear", "rbf", "poly") and not self.runner.is_running:
-            self.kernel_combo.setCurrentText(kernel)
-        self._draw()
-
-    def start(self) -> None:
-        if self.runner.is_running:
-            return
-        s = self.session
-        self.run_button.setEnabled(False)
-        self.cancel_button.setEnabled(True)
-        self.progress_bar.setValue(0)
-        self.status.setText("Computing the C curve...")
-        self.runner.start(door.c_curve_job(s, kernel=self.kernel_combo.currentText(), Cs=self.Cs))
-
-    def _on_progress(self, fraction: float, message: str) -> None:
-        self.progress_bar.setValue(int(fraction * 1000))
-        self.status.setText(message)
-
-    def _done(self) -> None:
-        self.run_button.setEnabled(True)
-        self.cancel_button.setEnabled(False)
-
-    def _on_finished(self, result: dict) -> None:
-        self._done()
-        self.set_result(result)
-
-    def _on_failed(self, message: str) -> None:
-        self._done()
-        self.status.setText(f"C curve failed: {message}")
-
-    def _on_cancelled(self) -> None:
-        self._done()
-        self.progress_bar.setValue(0)
-        self.status.setText("C curve cancelled; the previous curve is unchanged.")
-
-    def set_result(self, result: dict) -> None:
-        """Show a finished C curve job's result."""
-        self.result = result
-        self.series = door.curve_series(result["candidates"])
-        self._draw()
-        note = (
-            f"Cross-validated with {result['folds']} folds on {result['n_rows']:,} rows"
-            + (" (a stratified sample)" if result["sampled"] else "")
-            + ". Click a point to refit with that C."
-        )
-        self.status.setText(note)
-
-    # ---- drawing ---------------------------------------------------------------------------
-    def _draw(self) -> None:
-        for p, legend in zip((self.acc_plot, self.count_plot), self.legends, strict=True):
-            p.clear()
-            legend.clear()
-        self.chosen_lines = []
-        self.curves: list[tuple[door.CurveSeries, str, pg.PlotDataItem]] = []
-        styles = [Qt.PenStyle.SolidLine, Qt.PenStyle.DashLine, Qt.PenStyle.DotLine]
-        for gi, s in enumerate(self.series):
-            style = styles[gi % len(styles)]
-            x = np.log10(s.C)
-            suffix = "" if len(self.series) == 1 else f" ({s.name.split(', ', 1)[-1]})"
-            for plot, y, color, name, sym in (
-                (self.acc_plot, s.accuracy, palette.BLUE, "accuracy", "o"),
-                (self.acc_plot, s.balanced_accuracy, palette.ORANGE, "balanced accuracy", "s"),
-                (self.count_plot, s.n_bound, palette.GREEN, "bound support vectors", "o"),
-                (self.count_plot, s.n_wrong_side, palette.VERMILION, "wrong_side rows", "t"),
-            ):
-                curve = pg.PlotDataItem(
-                    x,
-                    y,
-                    pen=pg.mkPen(palette.qcolor(color), width=2, style=style),
-                    symbol=sym,
-                    symbolSize=8,
-                    symbolBrush=palette.brush(color),
-                    symbolPen=None,
-                )
-                curve.sigPointsClicked.connect(
-                    lambda _item, points, _ev=None, series=s: self._on_point(series, points)
-                )
-                plot.addItem(curve)
-                self.curves.append((s, name, curve))
-                legend = self.legends[0 if plot is self.acc_plot else 1]
-                legend.addItem(curve, name + suffix)
-        latest = self.session.latest
-        chosen = latest.settings.C if latest is not None else None
-        if chosen:
-            for plot in (self.acc_plot, self.count_plot):
-                line = pg.InfiniteLine(
-                    pos=float(np.log10(float(chosen))),
-                    angle=90,
-                    movable=False,
-                    pen=pg.mkPen(
-                        palette.qcolor(palette.TEXT), width=1.5, style=Qt.PenStyle.DashDotLine
-                    ),
-                    label=f"chosen C = {float(chosen):g}" if plot is self.acc_plot else None,
-                    labelOpts={"position": 0.1, "color": palette.TEXT},
-                )
-                plot.addItem(line)
-                self.chosen_lines.append(line)
-
-    def _on_point(self, series: door.CurveSeries, points: Any) -> None:
-        if points is None or len(points) == 0:
-            return
-        x = float(points[0].pos().x())
-        i = int(np.argmin(np.abs(np.log10(series.C) - x)))
-        self.pick(series, i)
-
-    def pick(self, series: door.CurveSeries, index: int) -> FitSettings:
-        """Ask for a refit with the C (and gamma) of one point of the curve."""
-        base = self.session.settings.to_dict()
-        base["kernel"] = (self.result or {}).get("kernel") or self.kernel_combo.currentText()
-        base["C"] = float(series.C[index])
-        if series.gamma is not None and base["kernel"] != "linear":
-            base["gamma"] = float(series.gamma)
-        settings = FitSettings.from_dict(base).validate()
-        self.bus.refit_requested.emit(settings)
-        return settings
-
-    def shutdown(self) -> None:
-        self.runner.shutdown()
+        self.threshold.label.setFormat("drag to filter")

@@ -16,6 +16,7 @@ _FALLBACK: dict[str, QStyle.StandardPixmap] = {
     "refit": QStyle.StandardPixmap.SP_BrowserReload,
     "confirm": QStyle.StandardPixmap.SP_DialogApplyButton,
     "relabel": QStyle.StandardPixmap.SP_FileDialogDetailedView,
+    "take_model": QStyle.StandardPixmap.SP_ArrowRight,
     "exclude": QStyle.StandardPixmap.SP_DialogCancelButton,
     "restore": QStyle.StandardPixmap.SP_DialogResetButton,
     "undo": QStyle.StandardPixmap.SP_ArrowBack,

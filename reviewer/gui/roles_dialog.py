@@ -6,6 +6,7 @@ from __future__ import annotations
 from typing import Any
 
 import numpy as np
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
     QComboBox,
     QDialog,
@@ -24,6 +25,8 @@ from reviewer.core.door import KINDS, TablePreview
 from reviewer.gui.table_model import ArrayTableModel, ColumnSpec
 
 NO_ID = "(none: rows are matched by position)"
+#: Widest a preview column starts (pixels); longer text elides, its tooltip shows it all.
+PREVIEW_MAX_WIDTH = 320
 
 
 def _remembered_kinds(remembered: dict[str, Any] | None) -> dict[str, str]:
@@ -72,6 +75,13 @@ class RolesDialog(QDialog):
         table.setObjectName("preview_table")
         table.verticalHeader().setDefaultSectionSize(22)
         table.setMaximumHeight(220)
+        table.setTextElideMode(Qt.TextElideMode.ElideRight)
+        # Columns as wide as their header and values (up to a limit), so text reads in full.
+        table.resizeColumnsToContents()
+        header = table.horizontalHeader()
+        for i in range(header.count()):
+            header.resizeSection(i, min(max(header.sectionSize(i), 60), PREVIEW_MAX_WIDTH))
+        self.preview_table = table
         layout.addWidget(table)
 
         form = QFormLayout()
@@ -93,6 +103,7 @@ class RolesDialog(QDialog):
         grid = QGridLayout(box)
         saved = _remembered_kinds(remembered)
         self.kind_combos: dict[str, QComboBox] = {}
+        self.kind_notes: dict[str, tuple[QLabel, str]] = {}
         for i, col in enumerate(preview.columns):
             kind, reason = preview.kinds.get(col, ("ignore", ""))
             combo = QComboBox()
@@ -102,6 +113,7 @@ class RolesDialog(QDialog):
             name = QLabel(str(col))
             note = QLabel(reason)
             note.setObjectName("hint")
+            self.kind_notes[col] = (note, reason)
             grid.addWidget(name, i, 0)
             grid.addWidget(combo, i, 1)
             grid.addWidget(note, i, 2)
@@ -126,15 +138,19 @@ class RolesDialog(QDialog):
 
     def _sync_enabled(self) -> None:
         # The label and id columns are not features, so their kind choice does not apply.
-        chosen = {self.label_combo.currentText(), self.id_combo.currentText()}
+        label, ident = self.label_combo.currentText(), self.id_combo.currentText()
         for col, combo in self.kind_combos.items():
-            combo.setEnabled(col not in chosen)
+            role = "the label column" if col == label else "the row id" if col == ident else ""
+            combo.setEnabled(not role)
+            note, reason = self.kind_notes[col]
+            # Say why the box is off, besides its greyed look.
+            note.setText(f"not a feature: {role}" if role else reason)
 
     def choices(self) -> tuple[str, str | None, dict[str, str]]:
         """(label column, id column or None, overrides for the kinds that differ from the guess)."""
         label = self.label_combo.currentText()
-        ident = self.id_combo.currentText()
-        ident = None if ident == NO_ID else ident
+        chosen_id = self.id_combo.currentText()
+        ident = None if chosen_id == NO_ID else chosen_id
         overrides: dict[str, str] = {}
         for col, combo in self.kind_combos.items():
             if col in (label, ident):

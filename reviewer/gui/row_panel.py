@@ -10,19 +10,23 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (
     QAbstractItemView,
-    QFormLayout,
-    QHBoxLayout,
+    QGridLayout,
+    QHeaderView,
     QLabel,
     QPlainTextEdit,
+    QSplitter,
     QTableView,
+    QTabWidget,
     QVBoxLayout,
     QWidget,
 )
 
 from reviewer.core.door import ReviewSession
+from reviewer.core.values import REVIEW_NAMES, display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.table_model import SOURCE_ROW_ROLE, ArrayTableModel, ColumnSpec
+from reviewer.gui.widgets import ElidedLabel
 
 _FIT_FIELDS = (
     ("margin", "Margin"),
@@ -41,7 +45,25 @@ def _text(value: object) -> str:
         return "–"
     if isinstance(value, (float, np.floating)):
         return "–" if math.isnan(value) else f"{value:.3f}"
-    return str(value).replace("_", " ")
+    return display_name(str(value))
+
+
+def _titled(title: str, body: QWidget) -> QWidget:
+    box = QWidget()
+    lay = QVBoxLayout(box)
+    lay.setContentsMargins(0, 0, 0, 0)
+    lay.setSpacing(2)
+    lay.addWidget(ElidedLabel(title))
+    lay.addWidget(body, 1)
+    return box
+
+
+def _fit_columns(view: QTableView) -> None:
+    """Every column as wide as its header and values; the last one takes what is left."""
+    header = view.horizontalHeader()
+    for i in range(header.count()):
+        mode = QHeaderView.ResizeMode.Stretch if i == 0 else QHeaderView.ResizeMode.ResizeToContents
+        header.setSectionResizeMode(i, mode)
 
 
 def _small_table(name: str) -> QTableView:
@@ -51,7 +73,6 @@ def _small_table(name: str) -> QTableView:
     view.verticalHeader().setDefaultSectionSize(22)
     view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
     view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
-    view.horizontalHeader().setStretchLastSection(True)
     view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
     return view
 
@@ -65,48 +86,65 @@ class RowPanel(QWidget):
         self.bus = bus
         self.session: ReviewSession | None = None
         self.row: int | None = None
-        outer = QHBoxLayout(self)
-        outer.setContentsMargins(6, 6, 6, 6)
-
-        facts = QVBoxLayout()
-        self.title = QLabel("No row selected")
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(6, 4, 6, 4)
+        self.title = ElidedLabel("No row selected")
         self.title.setObjectName("row_title")
-        facts.addWidget(self.title)
-        form = QFormLayout()
+        outer.addWidget(self.title)
+        # Four parts side by side in a splitter: each can be narrowed (or collapsed), so the
+        # panel never makes the window wider than the screen.
+        self.split = QSplitter(Qt.Orientation.Horizontal)
+        self.split.setObjectName("row_split")
+        self.split.setChildrenCollapsible(True)
+        outer.addWidget(self.split, 1)
+
+        facts = QWidget()
+        grid = QGridLayout(facts)
+        grid.setContentsMargins(0, 0, 6, 0)
+        grid.setHorizontalSpacing(8)
+        grid.setVerticalSpacing(2)
         self.values: dict[str, QLabel] = {}
-        for key, text in (("label", "Label"), ("review", "Review state"), *_FIT_FIELDS):
-            lab = QLabel("–")
+        fields = (("label", "Label"), ("review", "Review state"), *_FIT_FIELDS)
+        half = len(fields)  # one column of pairs: narrow, and the dock is tall enough
+        for i, (key, text) in enumerate(fields):
+            lab = ElidedLabel("–")
             lab.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
             self.values[key] = lab
-            form.addRow(text, lab)
-        facts.addLayout(form)
-        facts.addStretch(1)
-        outer.addLayout(facts, 2)
+            name = QLabel(text)
+            name.setObjectName("hint")
+            r, c = i % half, 2 * (i // half)
+            grid.addWidget(name, r, c)
+            grid.addWidget(lab, r, c + 1)
+        grid.setColumnStretch(1, 1)
+        grid.setRowStretch(half, 1)
+        self.split.addWidget(facts)
 
-        feats = QVBoxLayout()
-        feats.addWidget(QLabel("Features beside the class's typical values (tinted: unusual)"))
         self.features_model = ArrayTableModel()
         self.features = _small_table("features_table")
         self.features.setModel(self.features_model)
-        feats.addWidget(self.features)
-        outer.addLayout(feats, 4)
+        self.split.addWidget(
+            _titled("Features beside the class's typical values (⚑ tinted: unusual)", self.features)
+        )
 
-        nbrs = QVBoxLayout()
-        nbrs.addWidget(QLabel("Nearest labelled rows (tinted: another label; click to go)"))
         self.neighbours_model = ArrayTableModel()
         self.neighbours = _small_table("neighbours_table")
         self.neighbours.setModel(self.neighbours_model)
         self.neighbours.clicked.connect(self._neighbour_clicked)
-        nbrs.addWidget(self.neighbours)
-        outer.addLayout(nbrs, 3)
-
-        hist = QVBoxLayout()
-        hist.addWidget(QLabel("This row's history"))
         self.history = QPlainTextEdit()
         self.history.setObjectName("history")
         self.history.setReadOnly(True)
-        hist.addWidget(self.history)
-        outer.addLayout(hist, 1)
+        self.history.setLineWrapMode(QPlainTextEdit.LineWrapMode.WidgetWidth)
+        # Neighbours and history share a tabbed part, so each gets the width it needs.
+        self.context_tabs = QTabWidget()
+        self.context_tabs.setObjectName("row_context_tabs")
+        self.context_tabs.addTab(self.neighbours, "Nearest labelled rows")
+        self.context_tabs.addTab(self.history, "History")
+        self.context_tabs.setTabToolTip(0, "Tinted: another label. Click one to go to it.")
+        self.context_tabs.setTabToolTip(1, "Every decision and note on this row, newest last")
+        self.split.addWidget(self.context_tabs)
+        for i, stretch in enumerate((2, 4, 4)):
+            self.split.setStretchFactor(i, stretch)
+        self.split.setSizes([250, 420, 430])
 
         bus.row_selected.connect(self.show_row)
 
@@ -129,8 +167,10 @@ class RowPanel(QWidget):
             self.neighbours_model.set_columns([])
             self.history.setPlainText("")
             return
-        self.title.setText(f"Row {row}   ·   {s.roles.id or 'id'} {s.ids[row]}")
-        from reviewer.core.values import REVIEW_NAMES
+        # Without an id column the id is the row number: say it once.
+        self.title.setText(
+            f"Row {row}   ·   {s.roles.id} {s.ids[row]}" if s.roles.id else f"Row {row}"
+        )
 
         self.values["label"].setText(_text(s.labels[row]))
         self.values["review"].setText(REVIEW_NAMES[int(s.review[row])])
@@ -151,48 +191,51 @@ class RowPanel(QWidget):
                 + (f"  ({extra})" if extra else "")
             )
         self.history.setPlainText("\n".join(lines) or "No decisions yet.")
+        self.context_tabs.setTabText(1, f"History ({len(lines)})" if lines else "History")
 
     def _show_features(self, s: ReviewSession, row: int) -> None:
         prof = s.feature_profile(row)
         unusual = prof["unusual"].to_numpy(dtype=bool)
+        # Unusual features carry a flag as well as the tint, so they read without colour.
+        names = np.array(
+            [f"⚑ {n}" if u else str(n) for n, u in zip(prof["feature"], unusual, strict=True)],
+            dtype=object,
+        )
         self.features_model.set_columns(
             [
-                ColumnSpec("feature", "Feature", prof["feature"].to_numpy(dtype=object)),
+                ColumnSpec("feature", "Feature", names),
                 ColumnSpec("value", "This row", prof["value"].astype(object).to_numpy()),
                 ColumnSpec(
                     "typical", "Class typical", prof["class_typical"].astype(object).to_numpy()
                 ),
                 ColumnSpec("distance", "Distance", prof["distance"].to_numpy(dtype=float), 2),
-                ColumnSpec(
-                    "unusual",
-                    "",
-                    np.where(unusual, "unusual", "").astype(object),
-                ),
             ]
         )
         self.features_model.set_row_style(
             unusual.astype(np.int8),
             {1: (palette.tint(palette.ORANGE, 0.3), QColor(palette.TEXT))},
         )
-        self.features.resizeColumnsToContents()
+        _fit_columns(self.features)
 
     def _show_neighbours(self, s: ReviewSession, row: int) -> None:
         nb = s.neighbours(row)
         self.neighbours_model.set_columns(
             [
-                ColumnSpec("row_id", "Id", nb["row_id"].astype(object).to_numpy()),
+                # The table position, for the click; hidden (the id names the row).
+                ColumnSpec("row", "Row", nb["row"].to_numpy(dtype=np.int64)),
+                ColumnSpec("row_id", s.roles.id or "Row", nb["row_id"].astype(object).to_numpy()),
                 ColumnSpec("label", "Label", nb["label"].astype(object).to_numpy()),
                 ColumnSpec("slack", "Slack", nb["slack"].to_numpy(dtype=float), 2),
                 ColumnSpec("distance", "Distance", nb["distance"].to_numpy(dtype=float), 2),
-                ColumnSpec("row", "Row", nb["row"].to_numpy(dtype=np.int64)),
             ]
         )
         mine = s.labels[row]
         other = np.array([lab != mine for lab in nb["label"]], dtype=np.int8)
         self.neighbours_model.set_row_style(
-            other, {1: (palette.tint(palette.SKY, 0.25), QColor(palette.TEXT))}
+            other, {1: (palette.tint(palette.YELLOW, 0.35), QColor(palette.TEXT))}
         )
-        self.neighbours.resizeColumnsToContents()
+        self.neighbours.setColumnHidden(0, True)
+        _fit_columns(self.neighbours)
 
     def _neighbour_clicked(self, index) -> None:
         m = self.neighbours_model

@@ -1,25 +1,39 @@
-"""``python -m reviewer.gui.screenshot OUT.png``: the demo after its first fit, top row selected.
+"""``python -m reviewer.gui.screenshot OUT.png [--views FOLDER]``: the demo as a reviewer sees it.
 
-Works on a copy of the demo file in a temporary folder, so no session file is left behind.
+The window at 1,366 x 768 (a common laptop screen) after its first fit, top row selected.
+With ``--views`` it then takes the model's label on the five worst rows, refits, computes
+the C curve and saves each plot view as ``view_<name>.png`` in FOLDER. Works on a copy of the
+demo file in a temporary folder, so no session file is left behind.
 """
 
 from __future__ import annotations
 
+import argparse
 import sys
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
 
+import numpy as np
 from PySide6.QtCore import QEventLoop, QTimer
 
 from reviewer.gui.app import demo_copy, make_app
 from reviewer.gui.main_window import MainWindow
+from reviewer.gui.reporting import MessageLog
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_data" / "coffee_lots.csv"
+SIZE = (1366, 768)
+VIEW_SIZE = (900, 620)
+VIEW_FILES = {
+    "projection": "view_projection.png",
+    "histogram": "view_slack.png",
+    "c_curve": "view_c_curve.png",
+    "compare": "view_compare.png",
+}
 
 
-def _wait(app, until, seconds: float) -> bool:
-    loop_steps = int(seconds * 20)
-    for _ in range(loop_steps):
+def _wait(until: Callable[[], bool], seconds: float) -> bool:
+    for _ in range(int(seconds * 20)):
         if until():
             return True
         loop = QEventLoop()
@@ -28,35 +42,65 @@ def _wait(app, until, seconds: float) -> bool:
     return until()
 
 
+def _fitted(window: MainWindow) -> Callable[[], bool]:
+    return lambda: (
+        window.session is not None
+        and window.session.latest is not None
+        and not window.runner.is_running
+    )
+
+
+def save_views(window: MainWindow, folder: Path) -> list[Path]:
+    s = window.session
+    assert s is not None and s.latest is not None
+    wrong = np.flatnonzero(s.latest.rows["rank"].to_numpy() <= 5)
+    s.take_model_label([int(r) for r in wrong], reason="label looks wrong")
+    window.refit()
+    if not _wait(_fitted(window), 300):
+        raise RuntimeError("the refit did not finish in time")
+    panel = window.views_panel
+    panel.setCurrentWidget(panel.c_curve)
+    panel.c_curve.start()
+    if not _wait(lambda: not panel.c_curve.runner.is_running, 600):
+        raise RuntimeError("the C curve did not finish in time")
+    # Float the plots dock at a size of its own, so each view is drawn as large as in use.
+    window.views_slot.setFloating(True)
+    window.views_slot.resize(*VIEW_SIZE)
+    _wait(lambda: False, 0.3)
+    out = []
+    for attr, name in VIEW_FILES.items():
+        view = getattr(panel, attr)
+        panel.setCurrentWidget(view)
+        _wait(lambda: False, 0.4)
+        path = folder / name
+        view.grab().save(str(path))
+        out.append(path)
+    return out
+
+
 def main(argv: list[str]) -> int:
-    if len(argv) != 1:
-        sys.stderr.write("usage: python -m reviewer.gui.screenshot OUT.png\n")
-        return 2
-    out = Path(argv[0])
-    app = make_app()
+    parser = argparse.ArgumentParser(prog="python -m reviewer.gui.screenshot")
+    parser.add_argument("out", type=Path)
+    parser.add_argument("--views", type=Path, default=None, help="folder for view_*.png")
+    args = parser.parse_args(argv)
+    make_app()
     with tempfile.TemporaryDirectory() as tmp:
         data = demo_copy(DEMO, Path(tmp))
-        window = MainWindow()
-        window.resize(1500, 920)
+        window = MainWindow(reporter=MessageLog(), remember_layout=False)
         window.show()
+        window.resize(*SIZE)
         window.open_session(data, "grade", "lot_id")
-        ok = _wait(
-            app,
-            lambda: (
-                window.session is not None
-                and window.session.latest is not None
-                and not window.runner.is_running
-            ),
-            300,
-        )
-        if not ok:
+        if not _wait(_fitted(window), 300):
             sys.stderr.write("the first fit did not finish in time\n")
             return 1
         window.select_row(window.model.source_row(0))
-        _wait(app, lambda: False, 0.5)
-        window.grab().save(str(out))
+        _wait(lambda: False, 0.5)
+        window.grab().save(str(args.out))
+        print(args.out)
+        if args.views is not None:
+            for path in save_views(window, args.views):
+                print(path)
         window.close()
-    print(out)
     return 0
 
 

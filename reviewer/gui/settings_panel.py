@@ -17,6 +17,7 @@ from PySide6.QtWidgets import (
 
 from reviewer.core.errors import SettingsError
 from reviewer.core.values import KERNELS, SCORES, FitSettings
+from reviewer.gui.help_text import ranking_words
 
 _SCORE_TEXT = {"heldout": "held-out slack", "training": "training slack"}
 
@@ -64,9 +65,20 @@ class SettingsPanel(QWidget):
         self.refit_button = QPushButton("Refit  (F5)")
         self.refit_button.clicked.connect(self.refit_clicked)
         layout.addWidget(self.refit_button)
+        self.ranking = QLabel("")
+        self.ranking.setObjectName("hint")
+        self.ranking.setWordWrap(True)
+        layout.addWidget(self.ranking)
         layout.addStretch(1)
+        self.score.currentIndexChanged.connect(self._say_ranking)
+        self._say_ranking()
         self.kernel.currentTextChanged.connect(self._sync)
         self._sync()
+
+    def _say_ranking(self, *_: object) -> None:
+        self.ranking.setText(
+            "The list is ranked by " + ranking_words(str(self.score.currentData())) + "."
+        )
 
     def _sync(self) -> None:
         manual = self.kernel.currentText() != "auto"
@@ -120,4 +132,8 @@ class SettingsPanel(QWidget):
         if used.kernel != "linear":
             gamma = used.gamma_value if used.gamma_value is not None else used.gamma
             parts.append(f"gamma {num(gamma)}")
-        self.used.setText("Latest fit: " + ", ".join(parts))
+        asked_auto = self.kernel.currentText() == "auto"
+        if asked_auto and used.C is not None:
+            # Under auto the C box is disabled; show in it the C that auto chose.
+            self.C.setValue(float(used.C))
+        self.used.setText(("auto chose: " if asked_auto else "Latest fit: ") + ", ".join(parts))

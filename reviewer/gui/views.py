@@ -13,7 +13,7 @@ once and the others when they are next shown.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -36,11 +36,13 @@ from PySide6.QtWidgets import (
 
 from reviewer.core import door
 from reviewer.core.door import COMPARISON_CAUTION as CAUTION
-from reviewer.core.door import Comparison
+from reviewer.core.door import Comparison, ReviewSession
 from reviewer.core.errors import ReviewerError
+from reviewer.core.values import FitSettings, display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
-from reviewer.gui.plots import CCurvePlot, ProjectionPlot, SlackHistogramPlot
+from reviewer.gui.c_curve import CCurvePlot
+from reviewer.gui.plots import ProjectionPlot, SlackHistogramPlot
 from reviewer.gui.table_model import ArrayTableModel, ColumnSpec
 
 
@@ -50,7 +52,9 @@ def _fmt(value: Any, signed: bool = False) -> str:
     if isinstance(value, (bool, np.bool_)):
         return str(bool(value))
     if isinstance(value, (int, np.integer)) or (
-        isinstance(value, (float, np.floating)) and float(value).is_integer() and abs(value) < 1e12
+        isinstance(value, (float, np.floating))
+        and float(value).is_integer()
+        and abs(float(value)) < 1e12
     ):
         return f"{int(value):+,}" if signed else f"{int(value):,}"
     if isinstance(value, (float, np.floating)):
@@ -58,11 +62,42 @@ def _fmt(value: Any, signed: bool = False) -> str:
     return str(value)
 
 
+def _is_number(v: Any) -> bool:
+    return (
+        isinstance(v, (int, float, np.integer, np.floating))
+        and not isinstance(v, (bool, np.bool_))
+        and bool(np.isfinite(float(v)))
+    )
+
+
+def settings_text(st: FitSettings) -> str:
+    """Resolved fit settings in a few words: kernel, C, gamma, class weights, folds, seed."""
+    parts = [st.kernel]
+    if st.C is not None:
+        parts.append(f"C {float(st.C):.4g}")
+    if st.kernel in ("rbf", "poly"):
+        gamma = st.gamma_value if st.gamma_value is not None else st.gamma
+        parts.append(f"gamma {gamma:.4g}" if isinstance(gamma, (int, float)) else f"gamma {gamma}")
+    if st.kernel == "poly":
+        parts.append(f"degree {st.degree}")
+    if st.class_weight:
+        parts.append(f"{st.class_weight} weights")
+    parts.append(f"{st.folds} folds, seed {st.seed}")
+    return ", ".join(parts)
+
+
+def metric_name(name: str) -> str:
+    """A metric's name with any zone or support code in it shown by its display name."""
+    return " ".join(display_name(word) if "_" in word else word for word in str(name).split(" "))
+
+
 class CompareView(QWidget):
     """The baseline fit (source labels) against the latest fit: metrics, rows whose zone
     changed (click one to select it), the caution, and an optional trusted reference."""
 
-    def __init__(self, session: Any, bus: ReviewBus, parent: QWidget | None = None) -> None:
+    def __init__(
+        self, session: ReviewSession, bus: ReviewBus, parent: QWidget | None = None
+    ) -> None:
         super().__init__(parent)
         self.session = session
         self.bus = bus
@@ -83,12 +118,17 @@ class CompareView(QWidget):
         self.metrics.setHorizontalHeaderLabels(["metric", "before", "after", "change"])
         self.metrics.verticalHeader().setVisible(False)
         self.metrics.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
-        self.metrics.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+        # Every column as wide as its text: a metric's name is never cut off; a narrow dock
+        # scrolls instead.
+        self.metrics.horizontalHeader().setSectionResizeMode(
+            QHeaderView.ResizeMode.ResizeToContents
+        )
+        self.metrics.horizontalHeader().setStretchLastSection(False)
 
         self.reference_button = QPushButton("Score on a trusted reference file...")
         self.reference_button.setToolTip(
-            "A CSV, Parquet or Excel file with an id column and trusted labels; both fits' "
-            "the model's labels are scored against it, matched by id"
+            "A CSV, Parquet or Excel file with an id column and trusted labels; the model's "
+            "labels of both fits are scored against it, matched by id"
         )
         self.reference_label = QLabel("No reference file loaded.")
         self.reference_label.setWordWrap(True)
@@ -110,11 +150,11 @@ class CompareView(QWidget):
         self.changed_view.activated.connect(self._on_changed_clicked)
         self.changed_title = QLabel("Rows whose zone changed")
 
-        top = QSplitter(Qt.Orientation.Horizontal)
+        top = QSplitter(Qt.Orientation.Vertical)
         top.addWidget(self.metrics)
         top.addWidget(side)
         top.setStretchFactor(0, 3)
-        top.setStretchFactor(1, 2)
+        top.setStretchFactor(1, 1)
         bottom = QWidget()
         bl = QVBoxLayout(bottom)
         bl.setContentsMargins(0, 0, 0, 0)
@@ -144,12 +184,50 @@ class CompareView(QWidget):
         assert comp is not None  # both fits exist (checked above)
         self.comparison = comp
         self.table = door.metrics_table(comp.metrics)
-        self.metrics.setRowCount(len(self.table))
-        for i, line in enumerate(self.table.itertuples(index=False)):
-            cells = [line.metric, _fmt(line.before), _fmt(line.after), _fmt(line.change, True)]
+        new = comp.metrics_new
+        # Before | after (the edits alone, baseline's settings) | change, and when the latest
+        # fit used other settings: the edits and new settings | change from before.
+        headers = ["metric", "before", "after: edits alone", "change"]
+        if new is not None:
+            headers += ["edits and new settings", "change"]
+        self.metrics.setColumnCount(len(headers))
+        self.metrics.setHorizontalHeaderLabels(headers)
+        lines = list(self.table.itertuples(index=False))
+        self.metrics.setRowCount(len(lines) + 1)
+        settings_cells = [
+            "settings",
+            settings_text(comp.before_settings),
+            "same as before"
+            if comp.after_settings.same_fit_as(comp.before_settings)
+            else settings_text(comp.after_settings),
+            "",
+        ]
+        if new is not None and comp.new_settings is not None:
+            settings_cells += [settings_text(comp.new_settings), ""]
+        rows_cells = [settings_cells]
+        for line in lines:
+            cells = [
+                metric_name(line.metric),
+                _fmt(line.before),
+                _fmt(line.after),
+                _fmt(line.change, True),
+            ]
+            if new is not None:
+                value = new.get(line.metric)
+                before = line.before
+                change = (
+                    float(cast(float, value)) - float(cast(float, before))
+                    if _is_number(value) and _is_number(before)
+                    else None
+                )
+                cells += [_fmt(value), _fmt(change, True)]
+            rows_cells.append(cells)
+        for i, cells in enumerate(rows_cells):
             for j, text in enumerate(cells):
                 item = QTableWidgetItem(text)
-                if j:
+                if i == 0:
+                    item.setToolTip(text)
+                if j and i:
                     item.setTextAlignment(
                         Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter
                     )
@@ -157,11 +235,23 @@ class CompareView(QWidget):
         self.metrics.resizeColumnsToContents()
         ch = comp.changed_rows
         rows = ch["row"].to_numpy()
+        labels = np.array([None if v is None else str(v) for v in s.labels], dtype=object)
         self.changed_model.set_columns(
             [
-                ColumnSpec("row_id", "row id", np.asarray(s.ids, dtype=object)[rows]),
-                ColumnSpec("zone_before", "zone before", ch["zone_before"].to_numpy(dtype=object)),
-                ColumnSpec("zone_after", "zone after", ch["zone_after"].to_numpy(dtype=object)),
+                ColumnSpec("row_id", s.roles.id or "row", np.asarray(s.ids, dtype=object)[rows]),
+                ColumnSpec("label", "label", labels[rows]),
+                ColumnSpec(
+                    "zone_before",
+                    "zone before",
+                    ch["zone_before"].to_numpy(dtype=object),
+                    formatter=display_name,
+                ),
+                ColumnSpec(
+                    "zone_after",
+                    "zone after",
+                    ch["zone_after"].to_numpy(dtype=object),
+                    formatter=display_name,
+                ),
                 ColumnSpec("slack_before", "slack before", ch["slack_before"].to_numpy(float)),
                 ColumnSpec("slack_after", "slack after", ch["slack_after"].to_numpy(float)),
                 ColumnSpec(
@@ -181,8 +271,15 @@ class CompareView(QWidget):
         self.changed_title.setText(f"Rows whose zone changed: {len(rows):,} (click to select)")
         same = s.baseline is s.latest
         self.status.setText(
-            "Before: the first fit, on the labels as loaded. After: the latest fit"
-            + (" (the same fit: no refit since the first)." if same else ".")
+            "Before: the first fit, on the labels as loaded. After: the edited labels fitted "
+            "with the same settings, so the change is the edits alone"
+            + (" (no refit since the first yet)." if same else ".")
+            + (
+                " The latest fit used other settings: its column shows the edits and the new "
+                "settings together."
+                if new is not None
+                else ""
+            )
             + ("" if s.fit_is_current else " Edits made since the latest fit are not in it.")
         )
         self._show_reference()
@@ -197,7 +294,10 @@ class CompareView(QWidget):
     # ---- trusted reference ---------------------------------------------------------------------
     def choose_reference(self) -> None:
         path, _ = QFileDialog.getOpenFileName(
-            self, "Trusted reference file", "", "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls)"
+            self,
+            "Trusted reference file",
+            str(self.session.loaded.source.path.parent),
+            "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls)",
         )
         if not path:
             return
@@ -241,6 +341,9 @@ class CompareView(QWidget):
             self.reference_label.setText(str(exc))
             return
         self.reference_scores = out
+        if out is None:
+            self.reference_label.setText("Reference loaded; fit first to score it.")
+            return
         b, a = out["before"], out["after"]
         self.reference_label.setText(
             f"<b>Against {self.reference_name}</b> ({out['matched']:,} rows matched by id"
@@ -265,7 +368,7 @@ class ViewsPanel(QTabWidget):
 
     def __init__(
         self,
-        session: Any,
+        session: ReviewSession,
         bus: ReviewBus,
         parent: QWidget | None = None,
         *,
@@ -292,8 +395,9 @@ class ViewsPanel(QTabWidget):
         bus.labels_changed.connect(self.mark_stale)
         self.refresh()
 
-    def views(self) -> list[QWidget]:
-        return [self.widget(i) for i in range(self.count())]
+    def views(self) -> list[Any]:
+        """The four view widgets, in tab order (each has ``refresh()``)."""
+        return [w for i in range(self.count()) if (w := self.widget(i)) is not None]
 
     def refresh(self) -> None:
         """Redraw every view now."""
@@ -309,7 +413,9 @@ class ViewsPanel(QTabWidget):
     def _on_tab(self, index: int) -> None:
         if index in self._stale:
             self._stale.discard(index)
-            self.widget(index).refresh()
+            view: Any = self.widget(index)
+            if view is not None:
+                view.refresh()
 
     def shutdown(self) -> None:
         """Stop background work (the C curve); call from the window's closeEvent."""
@@ -328,7 +434,7 @@ def widget_png(widget: QWidget) -> bytes:
 
 
 def render_views_png(
-    session: Any, panel: ViewsPanel | None = None, *, size: tuple[int, int] = (960, 680)
+    session: ReviewSession, panel: ViewsPanel | None = None, *, size: tuple[int, int] = (960, 680)
 ) -> dict[str, bytes]:
     """Caption -> PNG of each view, for ``write_summary_html``'s ``images``.
 

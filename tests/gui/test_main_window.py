@@ -8,23 +8,16 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-import pytest
-from PySide6.QtCore import QSettings, Qt, QTimer
+from PySide6.QtCore import Qt, QTimer
 
 from reviewer.core import values
 from reviewer.core.review.session import ReviewSession
 from reviewer.core.values import FitSettings
 from reviewer.gui.main_window import MainWindow
+from reviewer.gui.reporting import MessageLog
 
 DEMO = Path(__file__).resolve().parents[2] / "reviewer" / "demo_data" / "coffee_lots.csv"
 FAST = FitSettings(kernel="rbf", C=10, folds=3)
-
-
-@pytest.fixture(autouse=True)
-def _private_settings(tmp_path, monkeypatch):
-    # Recent files go to an INI file under tmp_path, never the tester's own settings.
-    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(tmp_path / "ini"))
-    monkeypatch.setenv("REVIEWER_NO_DIALOGS", "1")
 
 
 def open_demo(tmp_path: Path) -> ReviewSession:
@@ -38,7 +31,7 @@ def open_demo(tmp_path: Path) -> ReviewSession:
 
 
 def make_window(qtbot, session: ReviewSession) -> MainWindow:
-    win = MainWindow(session)
+    win = MainWindow(session, reporter=MessageLog())
     qtbot.addWidget(win)
     win.show()
     qtbot.waitUntil(
@@ -63,7 +56,7 @@ def test_review_by_keyboard_then_refit(qtbot, tmp_path):
     assert ranks[top] == ranks.min()
     assert win.current_row() == top
     status = win.status_label.text()
-    assert "1800 rows" in status and "saved" in status
+    assert "1,800 rows" in status and "saved" in status
 
     # Down arrow moves the cursor; K keeps that row and moves on to the next unreviewed.
     qtbot.keyClick(win.table, Qt.Key.Key_Down)
@@ -218,7 +211,7 @@ def test_gui_stays_responsive_during_a_large_fit(qtbot, tmp_path):
     # The exact dual solver keeps the worker busy for several seconds on any machine, so
     # the GUI thread can be watched while it runs.
     session.set_settings(FitSettings(kernel="rbf", C=1, folds=2, solver="exact"))
-    win = MainWindow(session)
+    win = MainWindow(session, reporter=MessageLog())
     qtbot.addWidget(win)
     win.show()
     qtbot.waitUntil(lambda: win.runner.is_running, timeout=10_000)
@@ -237,3 +230,16 @@ def test_gui_stays_responsive_during_a_large_fit(qtbot, tmp_path):
     assert was_running, "the fit ended before the GUI could be watched"
     gaps = np.diff(ticks)
     assert gaps.max() < 0.25, f"the GUI thread stalled for {gaps.max():.2f} s"
+
+
+def test_a_formula_like_new_label_is_told_to_the_reviewer_once(qtbot, tmp_path):
+    # OWASP CSV injection: a label beginning with "=" would run in a spreadsheet.
+    win = make_window(qtbot, open_demo(tmp_path))
+    s = win.session
+    row = win.current_row()
+    win.relabel_to("=HYPERLINK(1)")
+    assert s.labels[row] == "=HYPERLINK(1)"  # kept exactly
+    told = [m for m in win.reporter.messages if "spreadsheet formula" in m]
+    assert len(told) == 1
+    win.relabel_to("+again")
+    assert len([m for m in win.reporter.messages if "spreadsheet formula" in m]) == 1

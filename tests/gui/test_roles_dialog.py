@@ -6,12 +6,13 @@ import shutil
 from pathlib import Path
 
 import pytest
-from PySide6.QtCore import QSettings, QTimer
+from PySide6.QtCore import QSettings, Qt, QTimer
 from PySide6.QtWidgets import QApplication, QDialogButtonBox
 
 from reviewer.core.review.session import ReviewSession
 from reviewer.gui.main_window import MainWindow
-from reviewer.gui.roles_dialog import NO_ID, RolesDialog
+from reviewer.gui.reporting import MessageLog
+from reviewer.gui.roles_dialog import NO_ID, PREVIEW_MAX_WIDTH, RolesDialog
 
 DEMO = Path(__file__).resolve().parents[2] / "reviewer" / "demo_data" / "coffee_lots.csv"
 
@@ -32,6 +33,22 @@ def test_dialog_shows_guesses(qtbot, data):
     assert dlg.head_model.rowCount() == 20
     label, _ident, overrides = dlg.choices()
     assert label == "grade" and overrides == {}
+    # The label and id columns are not features: their kind boxes are off and say why.
+    assert not dlg.kind_combos["grade"].isEnabled()
+    assert "label column" in dlg.kind_notes["grade"][0].text()
+    assert dlg.kind_combos["altitude_m"].isEnabled()
+    # The preview shows text in full (up to a generous width), headers not cut.
+    table = dlg.preview_table
+    fm = table.fontMetrics()
+    model = dlg.head_model
+    for col in range(model.columnCount()):
+        header = str(model.headerData(col, Qt.Orientation.Horizontal))
+        width = table.columnWidth(col)
+        assert width >= min(fm.horizontalAdvance(header), PREVIEW_MAX_WIDTH - 20), header
+        longest = max(
+            (str(model.data(model.index(r, col))) for r in range(model.rowCount())), key=len
+        )
+        assert width >= min(fm.horizontalAdvance(longest), PREVIEW_MAX_WIDTH - 20), header
 
 
 def test_choices_reach_the_session(qtbot, data, monkeypatch):
@@ -43,7 +60,7 @@ def test_choices_reach_the_session(qtbot, data, monkeypatch):
         return real_open(path, **kwargs)
 
     monkeypatch.setattr(ReviewSession, "open", staticmethod(spy))
-    win = MainWindow(auto_fit=False)
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
     qtbot.addWidget(win)
 
     def choose():
@@ -76,3 +93,67 @@ def test_choices_reach_the_session(qtbot, data, monkeypatch):
     qtbot.addWidget(dlg)
     assert dlg.label_combo.currentText() == "processing"
     assert dlg.kind_combos["screen_size"].currentText() == "categorical"
+
+
+def test_the_preview_is_read_off_the_gui_thread(qtbot, data, monkeypatch):
+    import threading
+
+    seen = {}
+    real_preview = ReviewSession.preview
+
+    def spy(path, **kwargs):
+        seen["thread"] = threading.current_thread()
+        return real_preview(path, **kwargs)
+
+    monkeypatch.setattr(ReviewSession, "preview", staticmethod(spy))
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
+    qtbot.addWidget(win)
+
+    def cancel():
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        # The dialog shows the first rows only.
+        assert dlg.head_model.rowCount() == 20
+        dlg.reject()
+
+    QTimer.singleShot(200, cancel)
+    assert not win.open_path(data)
+    assert seen["thread"] is not threading.main_thread()
+
+
+def test_a_workbook_asks_for_the_sheet_and_opens_it(qtbot, tmp_path, monkeypatch):
+    import pandas as pd
+    from PySide6.QtWidgets import QInputDialog
+
+    book = tmp_path / "lots.xlsx"
+    with pd.ExcelWriter(book) as writer:
+        pd.DataFrame({"about": ["harvest notes"]}).to_excel(writer, sheet_name="Notes", index=False)
+        pd.read_csv(DEMO).head(150).to_excel(writer, sheet_name="Lots", index=False)
+    asked = {}
+
+    def pick(parent, title, text, items, current, editable):
+        asked["items"] = list(items)
+        return "Lots", True
+
+    monkeypatch.setattr(QInputDialog, "getItem", staticmethod(pick))
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
+    qtbot.addWidget(win)
+
+    def choose():
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        assert "grade" in dlg.preview.columns  # the preview is of the chosen sheet
+        dlg.label_combo.setCurrentText("grade")
+        dlg.id_combo.setCurrentText("lot_id")
+        dlg.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+
+    QTimer.singleShot(300, choose)
+    assert win.open_path(book)
+    assert asked["items"] == ["Notes", "Lots"]
+    assert win.session.loaded.source.sheet == "Lots" and win.session.n_rows == 150

@@ -86,8 +86,6 @@ _SETTING_VALUES: dict[tuple[str, Any], str] = {
 _COLUMN_NAMES: dict[str, str] = {
     "row_id": "Row id",
     "row": "Row",
-    "suggested_before": "Model's label before",
-    "suggested_after": "Model's label after",
     "model_label_before": "Model's label before",
     "model_label_after": "Model's label after",
     "label": "Label",

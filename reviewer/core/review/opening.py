@@ -77,11 +77,12 @@ def preview_table(
     *,
     rows: int = 20,
     sample: int = PREVIEW_SAMPLE_ROWS,
+    sheet: str | None = None,
     progress: ProgressFn | None = None,
 ) -> TablePreview:
     """Read the first ``sample`` rows of a file and guess its roles, for the column-roles
     dialog (which shows the first ``rows``). The fingerprint is of the whole file."""
-    loaded = load_table(data_path, max_rows=max(rows, sample), progress=progress)
+    loaded = load_table(data_path, max_rows=max(rows, sample), sheet=sheet, progress=progress)
     frame = loaded.frame
     label = guess_label_column(frame)
     ident = guess_id_column(frame, label)
@@ -96,6 +97,7 @@ def preview_table(
                 "label": meta.get("label_column"),
                 "id": meta.get("id_column"),
                 "roles": meta.get("roles"),
+                "sheet": meta.get("sheet"),
             }
         except SessionError:
             remembered = None
@@ -115,10 +117,12 @@ def open_session(
     reviewer: str | None = None,
     read_only: bool = False,
     reattach: bool = False,
+    sheet: str | None = None,
     progress: ProgressFn | None = None,
     cancel: threading.Event | None = None,
 ) -> ReviewSession:
-    """Open (or start) the review of ``data_path``.
+    """Open (or start) the review of ``data_path`` (of its ``sheet``, for a workbook; a
+    session remembers its sheet).
 
     An existing session file resumes where the reviewer left off, with its remembered
     roles. If the data file changed since the session began, SourceChangedError is
@@ -126,7 +130,7 @@ def open_session(
     column; rows that no longer exist are reported in ``warnings``).
     """
     report = Reporter(progress, cancel)
-    loaded = load_table(data_path, progress=report.slice(0.0, 0.6), cancel=cancel)
+    loaded = load_table(data_path, sheet=sheet, progress=report.slice(0.0, 0.6), cancel=cancel)
     src = loaded.source
     path = Path(session_path) if session_path else default_session_path(src.path, src.sha256)
     warnings: list[str] = []
@@ -134,6 +138,17 @@ def open_session(
         file = SessionFile.open(path, read_only=read_only)
         try:
             meta = file.meta
+            remembered_sheet = meta.get("sheet")
+            if remembered_sheet and remembered_sheet != src.sheet:
+                if sheet is not None:
+                    raise SessionError(
+                        f"session {path} reviews sheet {remembered_sheet!r}, not {sheet!r}; "
+                        "choose another session file to review another sheet"
+                    )
+                loaded = load_table(
+                    data_path, sheet=remembered_sheet, progress=report.slice(0.0, 0.6)
+                )
+                src = loaded.source
             label_col = meta.get("label_column")
             id_col = meta.get("id_column")
             if not label_col:
@@ -192,6 +207,7 @@ def open_session(
                 "settings": settings.to_dict(),
                 "reviewer": reviewer or default_reviewer(),
                 "app_version": __version__,
+                "sheet": src.sheet,
             },
         )
     try:

@@ -135,11 +135,15 @@ class ReviewSession:
     # ---- opening ---------------------------------------------------------------------------
     @staticmethod
     def preview(
-        data_path: str | os.PathLike[str], *, rows: int = 20, progress: ProgressFn | None = None
+        data_path: str | os.PathLike[str],
+        *,
+        rows: int = 20,
+        sheet: str | None = None,
+        progress: ProgressFn | None = None,
     ) -> TablePreview:
-        """Read the leading rows of a file and guess its roles, for the column-roles dialog
-        (safe on a worker thread)."""
-        return opening.preview_table(data_path, rows=rows, progress=progress)
+        """Read the leading rows of a file (of ``sheet``, for a workbook) and guess its roles,
+        for the column-roles dialog (safe on a worker thread)."""
+        return opening.preview_table(data_path, rows=rows, sheet=sheet, progress=progress)
 
     @classmethod
     def open(
@@ -153,6 +157,7 @@ class ReviewSession:
         reviewer: str | None = None,
         read_only: bool = False,
         reattach: bool = False,
+        sheet: str | None = None,
         progress: ProgressFn | None = None,
         cancel: threading.Event | None = None,
     ) -> ReviewSession:
@@ -173,6 +178,7 @@ class ReviewSession:
             reviewer=reviewer,
             read_only=read_only,
             reattach=reattach,
+            sheet=sheet,
             progress=progress,
             cancel=cancel,
         )

@@ -48,6 +48,7 @@ META_KEYS = (
     "reviewer",
     "app_version",
     "created",
+    "sheet",
 )
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 # Autocommit mode: transactions are opened and closed explicitly. Access from several

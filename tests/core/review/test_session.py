@@ -175,3 +175,23 @@ def test_session_falls_back_to_the_user_folder_when_the_data_folder_is_read_only
     path = session_module.default_session_path(data, "ab" * 32)
     assert data.parent not in path.parents
     assert path.name.endswith(".review.sqlite")
+
+
+def test_a_workbook_sheet_is_chosen_and_remembered(tmp_path: Path) -> None:
+    import pandas as pd
+
+    book = tmp_path / "lots.xlsx"
+    lots = pd.read_csv(DEMO).head(120)
+    with pd.ExcelWriter(book) as writer:
+        pd.DataFrame({"about": ["harvest notes"]}).to_excel(writer, sheet_name="Notes", index=False)
+        lots.to_excel(writer, sheet_name="Lots", index=False)
+    preview = ReviewSession.preview(book, sheet="Lots")
+    assert preview.source.sheets == ("Notes", "Lots") and "grade" in preview.columns
+    with ReviewSession.open(book, label="grade", id_column="lot_id", sheet="Lots") as s:
+        assert s.n_rows == 120
+        s.confirm([0])
+    # Reopened without naming the sheet, the session reads the sheet it reviews.
+    with ReviewSession.open(book) as s:
+        assert s.loaded.source.sheet == "Lots" and s.n_events == 1
+    with pytest.raises(SessionError, match="reviews sheet 'Lots', not 'Notes'"):
+        ReviewSession.open(book, sheet="Notes")
