@@ -23,6 +23,7 @@ lint: $(STAMP)
 	$(VENV)/bin/ruff check .
 	$(VENV)/bin/ruff format --check .
 	$(VENV)/bin/lint-imports
+	$(VENV)/bin/mypy
 
 test: lint
 	QT_QPA_PLATFORM=offscreen $(PY) -m pytest -q

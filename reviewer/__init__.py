@@ -1,7 +1,8 @@
 """Margin Reviewer: rank rows of a labelled table by soft-margin slack and review them.
 
 The notebook door: ``scan`` and ``probe`` (one call on a DataFrame or a file), ``ReviewSession``
-(open a table, decide, undo, fit, export), ``FitSettings`` and the project's error types.
+(open a table, decide, undo, fit, export), ``FitSettings``, ``SoftMarginClassifier`` (the
+scikit-learn estimator every fit uses) and the project's error types.
 They are imported on first use, so ``import reviewer`` stays quick for the command line.
 """
 
@@ -15,6 +16,7 @@ _LAZY = {
     "scan": "reviewer.api",
     "probe": "reviewer.api",
     "ReviewSession": "reviewer.core.door",
+    "SoftMarginClassifier": "reviewer.core.door",
     "FitSettings": "reviewer.core.values",
     "ReviewerError": "reviewer.core.errors",
     "InputError": "reviewer.core.errors",
@@ -36,6 +38,7 @@ __all__ = [
     "SessionError",
     "SessionLockedError",
     "SettingsError",
+    "SoftMarginClassifier",
     "SourceChangedError",
     "__version__",
     "probe",
@@ -44,7 +47,7 @@ __all__ = [
 
 if TYPE_CHECKING:
     from reviewer.api import probe, scan
-    from reviewer.core.door import ReviewSession
+    from reviewer.core.door import ReviewSession, SoftMarginClassifier
     from reviewer.core.errors import (
         Cancelled,
         ExportError,

@@ -78,3 +78,24 @@ def test_probe_reports_recovery_and_progress_is_called() -> None:
     assert result.n_flipped == round(0.05 * 1800)
     assert 0.5 < result.auroc <= 1.0
     assert seen and seen[-1] == pytest.approx(1.0) and seen == sorted(seen)
+
+
+def test_the_estimator_works_in_scikit_learn_pipelines_and_cross_val_predict() -> None:
+    # Reference: scikit-learn's own SVC on the same standardised features (LIBSVM, Chang &
+    # Lin 2011) gives the same out-of-fold predictions for a linear kernel with C = 1.
+    from sklearn.datasets import load_breast_cancer
+    from sklearn.model_selection import StratifiedKFold, cross_val_predict
+    from sklearn.pipeline import make_pipeline
+    from sklearn.preprocessing import StandardScaler
+    from sklearn.svm import SVC
+
+    X, y = load_breast_cancer(return_X_y=True)
+    folds = StratifiedKFold(5, shuffle=True, random_state=0)
+    ours = make_pipeline(StandardScaler(), reviewer.SoftMarginClassifier(kernel="linear", C=1.0))
+    ref = make_pipeline(StandardScaler(), SVC(kernel="linear", C=1.0))
+    f_ours = cross_val_predict(ours, X, y, cv=folds, method="decision_function")
+    f_ref = cross_val_predict(ref, X, y, cv=folds, method="decision_function")
+    assert f_ours.shape == f_ref.shape == (len(y),)
+    # Both stop at a dual-gradient tolerance of order 1e-3, so decisions agree to about 1e-2.
+    np.testing.assert_allclose(f_ours, f_ref, atol=1e-2)
+    assert (cross_val_predict(ours, X, y, cv=folds) == (f_ref > 0)).mean() > 0.995

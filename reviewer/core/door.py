@@ -16,6 +16,7 @@ import pandas as pd
 
 from reviewer.core.data.loading import LoadedTable, load_table, table_from_frame
 from reviewer.core.data.roles import KINDS
+from reviewer.core.model.engine import SoftMarginClassifier
 from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
 from reviewer.core.model.scan import ScanOutcome, scan_table
 from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
@@ -66,6 +67,7 @@ __all__ = [
     "ProjectionPoints",
     "ReviewSession",
     "ScanOutcome",
+    "SoftMarginClassifier",
     "TablePreview",
     "boundary_in_projection",
     "c_curve_job",

@@ -224,7 +224,7 @@ def fit_margins(
     # margin as score, so a labelled row is never left without a rank.
     basis = np.where(np.isnan(held_margin), margin, held_margin) if use_heldout else margin
     score = -basis
-    F_suggest = F_held if use_heldout else F
+    F_suggest = F_held if use_heldout and F_held is not None else F
     suggest_cols = np.where(np.isnan(F_suggest), -np.inf, F_suggest)
     suggested = classes[np.argmax(suggest_cols, axis=1)].astype(object)
     suggested[np.all(np.isnan(F_suggest), axis=1)] = None
