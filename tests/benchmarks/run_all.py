@@ -36,6 +36,7 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--only", default="", help="comma-separated benchmark names")
     args = parser.parse_args(argv)
     names = scripts()
+    assert names, f"no benchmark scripts with a --smoke option found in {HERE}"
     if args.only:
         wanted = set(args.only.split(","))
         names = [n for n in names if n in wanted]
