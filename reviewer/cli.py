@@ -330,6 +330,10 @@ def _probe(args: argparse.Namespace) -> int:
     return 0
 
 
+def _warn(message: str) -> None:
+    sys.stderr.write(f"warning: {_one_line(message)}\n")
+
+
 def _export(args: argparse.Namespace) -> int:
     from reviewer.core.door import export_session
 
@@ -340,6 +344,7 @@ def _export(args: argparse.Namespace) -> int:
         report=Path(args.report) if args.report else None,
         keep_excluded=args.keep_excluded,
         overwrite=args.overwrite,
+        on_warning=_warn,
     )
     for path in written:
         sys.stderr.write(f"wrote {path}\n")

@@ -159,3 +159,29 @@ def test_verify_finds_a_changed_or_missing_export_file(tmp_path: Path) -> None:
     refused(run("verify", str(tmp_path / "clean.csv")), "differs from the one this export wrote")
     (tmp_path / "audit.csv").unlink()
     refused(run("verify", str(tmp_path / "clean.csv.manifest.json")), "is missing")
+
+
+def test_export_of_a_session_with_a_damaged_fit_warns_and_writes(tmp_path: Path) -> None:
+    import sqlite3
+
+    from reviewer.core.review.session import ReviewSession
+    from reviewer.core.values import FitSettings
+
+    data = tmp_path / "lots.csv"
+    data.write_bytes(DEMO.read_bytes())
+    with ReviewSession.open(data, label="grade", id_column="lot_id") as s:
+        s.fit(FitSettings(kernel="linear", C=1.0, folds=3))
+        s.confirm([1])
+        session_path = s.session_path
+    conn = sqlite3.connect(session_path)
+    conn.execute(
+        "UPDATE fit_rows SET data = CAST(substr(data,1,length(data)-8) || zeroblob(8) AS BLOB) "
+        "WHERE slot='latest'"
+    )
+    conn.commit()
+    conn.close()
+    done = run("export", str(session_path), "--out", str(tmp_path / "x.csv"))
+    assert done.returncode == 0, done.stderr
+    assert "Traceback" not in done.stderr
+    assert "warning: the saved latest fit was dropped" in done.stderr
+    assert (tmp_path / "x.csv").is_file()

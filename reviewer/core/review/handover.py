@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import os
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -111,8 +111,10 @@ def export_session(
     report: Path | None = None,
     keep_excluded: bool = False,
     overwrite: bool = False,
+    on_warning: Callable[[str], None] | None = None,
 ) -> list[Path]:
-    """The command line's export: open the session read-only next to its source file."""
+    """The command line's export: open the session read-only next to its source file.
+    ``on_warning`` hears what opening it had to say (a damaged fit dropped, say)."""
     if not Path(session_path).is_file():
         raise SessionError(f"session file {session_path} not found")
     with SessionFile.open(session_path, read_only=True) as f:
@@ -128,6 +130,10 @@ def export_session(
                 f"{source} changed since session {session_path} began; "
                 "re-attach it in the window first"
             )
+        if on_warning is not None:
+            for warning in session.warnings:
+                if warning != "opened read-only on request":  # as asked: nothing to say
+                    on_warning(warning)
         return session.export(
             out, audit=audit, report=report, keep_excluded=keep_excluded, overwrite=overwrite
         )
