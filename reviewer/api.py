@@ -86,8 +86,10 @@ def probe(
     recovery of planted flips, not of the errors already in the data.
     """
     settings = _settings("probe", kernel=kernel, C=C, gamma=gamma, folds=folds, seed=seed)
-    if not isinstance(rate, Real) or isinstance(rate, bool) or not 0 < float(rate) <= 0.5:
-        raise SettingsError(f"probe(): argument 'rate' must be a number in (0, 0.5], got {rate!r}")
+    if not isinstance(rate, Real) or isinstance(rate, bool) or not 0 < float(rate) < 0.5:
+        raise SettingsError(
+            f"probe(): argument 'rate' must be a number above 0 and below 0.5, got {rate!r}"
+        )
     loaded, _ = _load("probe", data)
     _check_columns("probe", loaded.frame, label, id, roles)
     return door.probe_loaded(

@@ -166,8 +166,10 @@ def formula_warning(values: Iterable[object], what: str) -> str | None:
     if not found:
         return None
     shown = ", ".join(repr(v) for v in found[:3]) + (" ..." if len(found) > 3 else "")
+    n = len(found)
     return (
-        f"{len(found):,} {what} begin like a spreadsheet formula ({shown}); they are kept "
+        f"some {what} begin like a spreadsheet formula ({n:,} distinct "
+        f"value{'s' if n != 1 else ''}: {shown}); they are kept "
         "exactly in the cleaned file and the scan output, so take care opening those in a "
         "spreadsheet (the audit CSV neutralises them)"
     )

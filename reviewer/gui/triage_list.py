@@ -203,6 +203,8 @@ class TriageList(QWidget):
             ),
             ColumnSpec("id", s.roles.id or "Row", np.asarray(s.ids, dtype=object)),
             ColumnSpec("label", "Label", self.labels()),
+            # The review state sits beside the label, so it shows on a laptop screen too.
+            ColumnSpec("review", "Review", self.review_names(), formatter=review_text),
             ColumnSpec("model_label", "Model's label", self.fit_column("model_label")),
             ColumnSpec(
                 "heldout_slack",
@@ -219,7 +221,6 @@ class TriageList(QWidget):
                 tooltip="How far past its own margin the row sits (0 = clear)",
             ),
             ColumnSpec("zone", "Zone", self.fit_column("zone"), formatter=display_name),
-            ColumnSpec("review", "Review", self.review_names(), formatter=review_text),
             ColumnSpec("support", "Support", self.fit_column("support"), formatter=display_name),
         ]
         frame = s.frame

@@ -78,7 +78,7 @@ def fit_margins(
     classes, fit_idx = np.unique(labels[fit_rows].astype(str), return_inverse=True)
     if len(classes) < 2:
         raise InputError(
-            f"need at least two classes to fit; the labelled rows all have {classes[0]!r}"
+            f"need at least two classes to fit; the labelled rows all have {str(classes[0])!r}"
             if len(classes) == 1
             else "need at least two classes to fit"
         )

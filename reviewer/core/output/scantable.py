@@ -20,6 +20,15 @@ PARQUET_SUFFIXES = (".parquet", ".pq")
 
 def check_scan_target(out: str | os.PathLike[str], *, protect: Iterable[Path] = ()) -> Path:
     """Refuse a bad output path before the work starts (an input, a folder, no such folder)."""
+    from reviewer.core.errors import ExportError
+    from reviewer.core.output.atomic import same_file
+
+    for source in protect:
+        if same_file(Path(os.path.abspath(os.fspath(out))), Path(source)):
+            raise ExportError(
+                f"refusing to write the output onto the source data file {source}; "
+                "choose another file name"
+            )
     path = check_target(out, overwrite=True, protect=protect)
     if not path.parent.is_dir():
         from reviewer.core.errors import ExportError

@@ -20,7 +20,7 @@ import pandas as pd
 
 from reviewer.core import values
 from reviewer.core.data.dataset import Dataset
-from reviewer.core.errors import SessionError
+from reviewer.core.errors import InputError, SessionError
 from reviewer.core.model.fitting import FitResult
 from reviewer.core.progress import ProgressFn
 from reviewer.core.review import fits, handover, opening
@@ -57,6 +57,8 @@ __all__ = [
 ]
 
 Listener = Callable[[str, Any], None]
+Rows = int | Iterable[int]
+"""Row positions: one int, or several (lists, numpy arrays)."""
 
 
 class ReviewSession:
@@ -289,36 +291,82 @@ class ReviewSession:
         return out
 
     # ---- edits -------------------------------------------------------------------------------
-    def confirm(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
+    # ``rows`` are 0-based row positions in the table (one int or several); `rows_of` turns
+    # id values into positions. Each call is one step in the log and one undo.
+    def rows_of(self, ids: Iterable[object] | str) -> list[int]:
+        """Row positions of the given id values (as text, the way the id column reads)."""
+        wanted = [ids] if isinstance(ids, str) else list(ids)
+        where = {str(v): i for i, v in enumerate(self.ids)}
+        missing = [str(v) for v in wanted if str(v) not in where]
+        if missing:
+            raise InputError(f"argument 'ids': no row has id {', '.join(missing[:5])}")
+        return [where[str(v)] for v in wanted]
+
+    def ranking(self) -> pd.DataFrame:
+        """The latest fit as the scan table: row_id, label (current), model_label, margin,
+        slack, held-out values, alpha, zone, support, score, rank; one row per table row."""
+        if self.latest is None:
+            raise SessionError("no fit yet: fit first to get a ranking")
+        from reviewer.core.model.scan import scan_frame
+
+        return scan_frame(self.latest, self.labels, self.ids)
+
+    def confirm(self, rows: Rows, *, reason: str = "", note: str = "") -> Event:
+        """The rows' current labels are right."""
         return self._edit(values.CONFIRM, rows, reason=reason, note=note)
 
-    def relabel(
-        self, rows: Iterable[int], label: str, *, reason: str = "", note: str = ""
-    ) -> Event:
+    def relabel(self, rows: Rows, label: str, *, reason: str = "", note: str = "") -> Event:
+        """Give the rows ``label`` (a class of the table or a new one). Rows that already
+        have it are left out; if every row has it, SessionError says to confirm instead."""
         label = str(label).strip()
         if not label:
             raise SessionError("a new label cannot be empty")
+        positions = self._positions(values.RELABEL, rows)
+        changing = [r for r in positions if self.labels[r] != label]
+        if positions and not changing:
+            raise SessionError(
+                f"relabel: the selected row(s) already have label {label!r}; confirm them instead"
+            )
         if not self._warned_formula and values.looks_like_formula(label):
             self._warned_formula = True
             self._announce("warning", values.formula_warning([label], "new labels"))
-        return self._edit(values.RELABEL, rows, label=label, reason=reason, note=note)
+        return self._edit(values.RELABEL, changing, label=label, reason=reason, note=note)
 
-    def exclude(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
+    def exclude(self, rows: Rows, *, reason: str = "", note: str = "") -> Event:
+        """Leave the rows out of the fits and of the cleaned file."""
         return self._edit(values.EXCLUDE, rows, reason=reason, note=note)
 
-    def restore(self, rows: Iterable[int], *, reason: str = "", note: str = "") -> Event:
+    def restore(self, rows: Rows, *, reason: str = "", note: str = "") -> Event:
+        """Bring excluded rows back."""
         return self._edit(values.RESTORE, rows, reason=reason, note=note)
 
-    def add_note(self, rows: Iterable[int], text: str) -> Event:
+    def add_note(self, rows: Rows, text: str) -> Event:
+        """A note on the rows (changes nothing; not an undo step)."""
         return self._edit(values.NOTE, rows, note=text)
 
-    def take_model_label(
-        self, rows: Iterable[int], *, reason: str = "", note: str = ""
-    ) -> list[Event]:
+    def _positions(self, action: str, rows: Rows) -> list[int]:
+        """``rows`` as sorted distinct positions; our error for anything that is not one."""
+        items = [rows] if isinstance(rows, (int, np.integer)) else rows
+        if isinstance(items, (str, bytes)) or not isinstance(items, Iterable):
+            raise SessionError(
+                f"{action}: argument 'rows' must be row positions (ints), got {rows!r}; "
+                "use rows_of(ids) for id values"
+            )
+        out: set[int] = set()
+        for r in items:
+            if isinstance(r, (bool, np.bool_)) or not isinstance(r, (int, np.integer)):
+                raise SessionError(
+                    f"{action}: argument 'rows' must hold row positions (ints), got {r!r}; "
+                    "use rows_of(ids) for id values"
+                )
+            out.add(int(r))
+        return sorted(out)
+
+    def take_model_label(self, rows: Rows, *, reason: str = "", note: str = "") -> list[Event]:
         """Relabel each row to the latest fit's model label, one step per distinct label."""
         if self.latest is None:
             raise SessionError("no fit yet: fit first to get the model's labels")
-        rows = [int(r) for r in rows]
+        rows = self._positions("take the model's label", rows)
         suggested = self.latest.rows["model_label"].to_numpy()
         groups: dict[str, list[int]] = {}
         for r in rows:
@@ -350,14 +398,14 @@ class ReviewSession:
     def _edit(
         self,
         action: str,
-        rows: Iterable[int],
+        rows: Rows,
         *,
         label: str | None = None,
         reason: str = "",
         note: str = "",
     ) -> Event:
         self._writable()
-        rows = sorted({int(r) for r in rows})
+        rows = self._positions(action, rows)
         if not rows and action != values.NOTE:
             raise SessionError(f"{action}: no rows selected")
         bad = [r for r in rows if not 0 <= r < self.n_rows]

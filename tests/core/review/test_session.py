@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from reviewer.core.errors import SessionError, SessionLockedError, SourceChangedError
+from reviewer.core.errors import InputError, SessionError, SessionLockedError, SourceChangedError
 from reviewer.core.review.session import ReviewSession
 from reviewer.core.values import FitSettings
 
@@ -38,7 +38,8 @@ def test_edits_fit_and_reopen_resume_where_the_reviewer_left_off(data: Path) -> 
     with open_session(data) as s:
         fit = s.fit(QUICK)
         worst = fit.rows.sort_values("rank").index[:4].tolist()
-        s.relabel([worst[0]], "exchange", reason="label looks wrong")
+        other = next(c for c in s.classes if c != s.labels[worst[0]])
+        s.relabel([worst[0]], other, reason="label looks wrong")
         s.confirm([worst[1]])
         s.exclude(worst[2:4])
         labels, excluded, review = s.labels.copy(), s.excluded.copy(), s.review.copy()
@@ -195,3 +196,36 @@ def test_a_workbook_sheet_is_chosen_and_remembered(tmp_path: Path) -> None:
         assert s.loaded.source.sheet == "Lots" and s.n_events == 1
     with pytest.raises(SessionError, match="reviews sheet 'Lots', not 'Notes'"):
         ReviewSession.open(book, sheet="Notes")
+
+
+def test_rows_are_checked_and_ids_can_name_them(tmp_path: Path) -> None:
+    data = tmp_path / "lots.csv"
+    shutil.copy(DEMO, data)
+    with ReviewSession.open(data, label="grade", id_column="lot_id") as s:
+        s.confirm(5)  # one position
+        s.confirm(np.array([6, 7]))  # numpy positions
+        assert s.n_events == 2
+        for bad in ("GC-2026-00201", [1.5], [True], 3.0):
+            with pytest.raises(SessionError, match="argument 'rows'"):
+                s.confirm(bad)
+        rows = s.rows_of(["GC-2026-00201"])
+        assert s.ids[rows[0]] == "GC-2026-00201"
+        with pytest.raises(InputError, match="no row has id nope"):
+            s.rows_of("nope")
+        # Relabelling to the label a row already has is not a relabel.
+        current = s.labels[rows[0]]
+        with pytest.raises(SessionError, match="already have label"):
+            s.relabel(rows, current)
+        other = next(c for c in s.classes if c != current)
+        event = s.relabel([rows[0], 9], other)
+        assert all(b != other for b in event.before)  # only rows that change are logged
+
+
+def test_the_ranking_has_the_scan_columns(tmp_path: Path) -> None:
+    data = tmp_path / "lots.csv"
+    shutil.copy(DEMO, data)
+    with ReviewSession.open(data, label="grade", id_column="lot_id") as s:
+        s.fit(FitSettings(kernel="linear", C=1.0, folds=3))
+        table = s.ranking()
+        assert list(table.columns)[:3] == ["row_id", "label", "model_label"]
+        assert table.sort_values("rank")["row_id"].iloc[0] == s.ids[s.latest.rows["rank"].idxmin()]
