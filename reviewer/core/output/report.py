@@ -89,6 +89,10 @@ _COLUMN_NAMES: dict[str, str] = {
     "model_label_before": "Model's label before",
     "model_label_after": "Model's label after",
     "label": "Label",
+    "label_before": "Label as loaded",
+    "decided": "Decision",
+    "decision": "Decision",
+    "reason": "Reason or note",
     "model_label": "Model's label",
 }
 _CODES = re.compile(r"\b(" + "|".join(map(re.escape, {**ZONE_NAMES, **SUPPORT_NAMES})) + r")\b")
@@ -115,7 +119,7 @@ def _text(value: Any) -> str:
     if isinstance(value, bool):
         return "yes" if value else "no"
     if isinstance(value, float):
-        return f"{value:.6g}"
+        return f"{value:.4g}"
     if isinstance(value, (list, dict)):
         return json.dumps(value, ensure_ascii=False)
     return str(value)
@@ -260,14 +264,16 @@ def _metrics_section(
     return section
 
 
-def _rows_section(rows: Sequence[Mapping[str, Any]] | None) -> _Section | None:
+def _rows_section(
+    rows: Sequence[Mapping[str, Any]] | None, title: str = "Rows whose zone changed"
+) -> _Section | None:
     if not rows:
         return None
     keys: list[str] = []
     for row in rows:
         keys += [str(k) for k in row if str(k) not in keys]
     section = _Section(
-        "Rows whose zone changed",
+        title,
         [_Cell(_column_title(k), "id" if k in _ID_COLUMNS else "", "th") for k in keys],
     )
     for row in rows:
@@ -378,6 +384,7 @@ def render_summary_html(summary: Mapping[str, Any], *, where: Any = "summary") -
             _metrics_section(name, metrics, columns, draw=(i == 0))
             for i, (name, metrics) in enumerate(tables.items())
         ),
+        _rows_section(summary.get("decided_rows"), "Rows decided"),
         _rows_section(summary.get("changed_rows")),
         _images_section(summary.get("images"), where),
     ]

@@ -7,6 +7,9 @@ from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
+from reviewer.core import values
 from reviewer.core.data.loading import sha256_of
 from reviewer.core.errors import SessionError, SourceChangedError
 from reviewer.core.review.sessionfile import SessionFile
@@ -58,10 +61,13 @@ def export(
 
 def summary_for_report(session: ReviewSession, written: Sequence[Path] = ()) -> dict[str, Any]:
     events = session.events()
+    # Decisions count the rows they name; undo, redo and notes count as steps of their own.
+    unit = {"undo": "steps", "redo": "steps", "note": "notes"}
     by_action: dict[str, int] = {}
     by_reason: dict[str, int] = {}
     for e in events:
-        by_action[e.action] = by_action.get(e.action, 0) + 1
+        key = f"{e.action} ({unit.get(e.action, 'rows')})"
+        by_action[key] = by_action.get(key, 0) + (1 if e.action in unit else len(e.rows))
         if e.reason:
             by_reason[e.reason] = by_reason.get(e.reason, 0) + 1
     summary: dict[str, Any] = {
@@ -92,14 +98,39 @@ def summary_for_report(session: ReviewSession, written: Sequence[Path] = ()) -> 
                 "before and after": comparison.before_settings,
                 "edits and new settings": comparison.new_settings,
             }
+        review = session.review
+        changed = comparison.changed_rows.assign(
+            decided=[values.REVIEW_NAMES[review[r]] for r in comparison.changed_rows["row"]],
+            _moved=(
+                comparison.changed_rows["slack_after"] - comparison.changed_rows["slack_before"]
+            ).abs(),
+            _open=[review[r] == values.OPEN for r in comparison.changed_rows["row"]],
+        )
+        # Rows the reviewer decided first, then the largest moves: a zone change by a hair
+        # across slack = 1 goes to the end.
+        changed = changed.sort_values(["_open", "_moved"], ascending=[True, False])
         summary["changed_rows"] = [
-            {"row_id": str(session.ids[r]), **{k: v for k, v in ch.items() if k != "row"}}
-            for r, ch in zip(
-                comparison.changed_rows["row"],
-                comparison.changed_rows.to_dict("records"),
-                strict=True,
-            )
+            {"row_id": str(session.ids[int(ch["row"])])}
+            | {k: v for k, v in ch.items() if k != "row" and not k.startswith("_")}
+            for ch in changed.to_dict("records")
         ][:500]
+    decided = np.flatnonzero(session.review != values.OPEN)
+    if len(decided):
+        last_reason: dict[int, str] = {}
+        for e in events:
+            if e.action in values.EDIT_ACTIONS:
+                for r in e.rows:
+                    last_reason[r] = e.reason or e.note
+        summary["decided_rows"] = [
+            {
+                "row_id": str(session.ids[r]),
+                "label_before": session.source_labels[r],
+                "label": session.labels[r],
+                "decision": values.REVIEW_NAMES[session.review[r]],
+                "reason": last_reason.get(int(r), ""),
+            }
+            for r in decided[:2000]
+        ]
     return summary
 
 
