@@ -15,6 +15,7 @@ from typing import Any
 from PySide6.QtCore import QObject, QThread, Signal
 
 from reviewer.core.errors import ReviewerError
+from reviewer.gui import collector
 
 log = logging.getLogger(__name__)
 
@@ -162,6 +163,10 @@ class TaskRunner(QObject):
         self._thread = thread
         self._cancel = cancel
         self._running = True
+        # While the worker runs, Python's garbage collection stays on this (GUI) thread.
+        self._collector = collector.instance()
+        if self._collector is not None:
+            self._collector.hold()
         thread.start()
 
     def cancel(self) -> None:
@@ -184,6 +189,12 @@ class TaskRunner(QObject):
         self.cancel()
         return self.wait(msecs)
 
+    def _ended(self) -> None:
+        self._running = False
+        held, self._collector = getattr(self, "_collector", None), None
+        if held is not None:
+            held.release()
+
     def _current(self) -> bool:
         # Each thread sends exactly one outcome and its queued signals arrive in order, so
         # after the outcome nothing from that thread is still pending.
@@ -195,15 +206,15 @@ class TaskRunner(QObject):
 
     def _on_succeeded(self, result: object) -> None:
         if self._current():
-            self._running = False
+            self._ended()
             self.finished.emit(result)
 
     def _on_raised(self, message: str) -> None:
         if self._current():
-            self._running = False
+            self._ended()
             self.failed.emit(message)
 
     def _on_stopped(self) -> None:
         if self._current():
-            self._running = False
+            self._ended()
             self.cancelled.emit()
