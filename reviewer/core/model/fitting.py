@@ -18,7 +18,7 @@ from reviewer.core.model.engine import (
     support_kinds,
     zones_from_slack,
 )
-from reviewer.core.model.heldout import heldout_decision
+from reviewer.core.model.heldout import FoldFeatures, heldout_decision
 from reviewer.core.model.tuning import RBF_CS, choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings, FitSummary
@@ -47,8 +47,12 @@ def fit_margins(
     excluded: np.ndarray | None = None,
     progress: ProgressFn | None = None,
     cancel=None,
+    fold_features: FoldFeatures | None = None,
 ) -> FitResult:
     """Fit on rows with a label that are not excluded; report on every row of the table.
+
+    ``fold_features(train, test)``, with positions into the table's rows, rebuilds the
+    feature matrices of one held-out fold from its training rows (see heldout_decision).
 
     Rows left out of the fit (unlabelled or excluded) still get decision values, so an
     excluded row's margin is what a model that never saw it thinks of its label.
@@ -212,6 +216,9 @@ def fit_margins(
             folds,
             settings.seed,
             report=report.slice(fit_end, 0.98),
+            fold_features=None
+            if fold_features is None
+            else lambda train, test: fold_features(fit_rows[train], fit_rows[test]),
         )
         notes.extend(fold_notes)
         F_held = F.copy()  # rows outside the fit: the full model never saw them either

@@ -7,12 +7,17 @@ training; a model that never saw the row has no such blind spot.
 from __future__ import annotations
 
 import warnings
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 from sklearn.base import BaseEstimator, clone
 from sklearn.model_selection import StratifiedKFold
 
 from reviewer.core.progress import Reporter
+
+FoldFeatures = Callable[[np.ndarray, np.ndarray], tuple[Any, Any]]
+"""(train, test) row positions -> (train matrix, test matrix), built from the train rows."""
 
 
 def effective_folds(y_idx: np.ndarray, folds: int) -> tuple[int, list[str]]:
@@ -45,12 +50,18 @@ def heldout_decision(
     folds: int,
     seed: int,
     report: Reporter | None = None,
+    fold_features: FoldFeatures | None = None,
 ) -> tuple[np.ndarray, list[str]]:
     """(n, K) out-of-fold decision values; NaN for a class absent from a fold's training rows.
 
-    Each fold fits ``clone(estimator)``. The loop is ours rather than cross_val_predict's so a
-    long fit reports progress per fold, honours a cancel between folds, and leaves NaN (not an
-    error) for a class that a fold's training rows lack.
+    Each fold fits ``clone(estimator)``. ``fold_features(train, test)``, when given, builds
+    the fold's (train, test) matrices from positions into X's rows, so features whose
+    statistics come from the data (a text column's vocabulary and idf) are learned from the
+    fold's training rows alone; without it the fold uses rows of X.
+
+    The loop is ours rather than cross_val_predict's so a long fit reports progress per fold,
+    honours a cancel between folds, and leaves NaN (not an error) for a class that a fold's
+    training rows lack.
     """
     report = report or Reporter()
     k, notes = effective_folds(y_idx, folds)
@@ -66,10 +77,14 @@ def heldout_decision(
         present = np.unique(y_idx[train])
         if len(present) < 2:
             continue
+        if fold_features is None:
+            X_train, X_test = X[train], X[test]
+        else:
+            X_train, X_test = fold_features(train, test)
         model = clone(estimator)
         # Fit on class indices so a missing class maps back to the right column.
-        model.fit(X[train], y_idx[train], report=sub)
-        F = model.decision_matrix(X[test])
+        model.fit(X_train, y_idx[train], report=sub)
+        F = model.decision_matrix(X_test)
         cols = model.classes_.astype(int)
         block = np.full((len(test), n_classes), np.nan)
         if len(cols) == 2 and n_classes > 2:
