@@ -158,8 +158,8 @@ class ProjectionPlot(QWidget):
         self.plot.setLabel("bottom", f"component 1 ({var[0]:.0%} of variance)")
         self.plot.setLabel("left", f"component 2 ({var[1]:.0%} of variance)")
         drawn = (
-            f"{len(pts.rows):,} of {pts.n_total:,} rows drawn: every suspect and reviewed row, "
-            "and a random sample of the rest."
+            f"{len(pts.rows):,} of {pts.n_total:,} rows drawn: every reviewed row, the most "
+            "suspect rows, and a random sample of the rest."
             if pts.downsampled
             else f"All {pts.n_total:,} rows drawn."
         )

@@ -178,7 +178,10 @@ def open_on_worker(strip: TaskStrip, path: Path, **kwargs: Any) -> ReviewSession
     thread."""
 
     def job(progress: Any, cancel: Any) -> ReviewSession:
-        return ReviewSession.open(path, progress=progress, cancel=cancel, **kwargs)
+        session = ReviewSession.open(path, progress=progress, cancel=cancel, **kwargs)
+        # The projection and the class norms here, not in the first paint.
+        session.prepare_views()
+        return session
 
     try:
         return run_on_worker(strip, f"opening {Path(path).name}…", job)

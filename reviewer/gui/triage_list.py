@@ -5,6 +5,7 @@ which row is next) come from the door."""
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 from PySide6.QtCore import QEvent, QObject, Qt
 from PySide6.QtGui import QKeyEvent
 from PySide6.QtWidgets import (
@@ -175,14 +176,17 @@ class TriageList(QWidget):
             return np.full(n, np.nan)
         col = s.latest.rows[key]
         if key in TEXT_KEYS:
-            return np.array([None if v is None else str(v) for v in col], dtype=object)
+            # Codes and class names are text already; missing ones show as empty cells.
+            out = col.to_numpy(dtype=object, copy=True)
+            out[pd.isna(out)] = None
+            return out
         if key == "rank":
             return col.to_numpy(dtype=np.int64)
         return col.to_numpy(dtype=float)
 
     def labels(self) -> np.ndarray:
         assert self.session is not None
-        return np.array([None if v is None else str(v) for v in self.session.labels], dtype=object)
+        return np.array(self.session.labels, dtype=object, copy=True)
 
     def review_names(self) -> np.ndarray:
         assert self.session is not None

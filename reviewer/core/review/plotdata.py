@@ -3,11 +3,13 @@
 The views in ``reviewer/gui`` only draw what these functions return, so every count, bin and
 line on screen can be checked in a plain test.
 
-Downsampling (projection view): a scatter of a million points is slow to redraw, so at most
-``PROJECTION_LIMIT`` points are drawn. Every suspect row (wrong_side or inside_margin) and
-every reviewed row is always drawn; the rest of the budget goes to a uniform random sample
-(fixed seed, so the picture does not flicker between refreshes) of the other rows. When the
-kept rows alone exceed the budget, all of them are drawn and nothing else.
+Downsampling (projection view): pyqtgraph's setData costs about 15 microseconds a point
+(150,000 points took 2.4 s on a busy 2-core machine, 40,000 took 0.4-0.7 s), and at a
+million rows that was most of the window's first paint, so at most ``PROJECTION_LIMIT``
+points are drawn. Every reviewed row is always drawn; then the suspect rows (wrong_side or
+inside_margin), most suspect first (by the ranking score), up to the budget; the rest of the
+budget goes to a uniform random sample (fixed seed, so the picture does not flicker between
+refreshes) of the other rows. A picture cannot show more points than this apart anyway.
 """
 
 from __future__ import annotations
@@ -21,28 +23,50 @@ import pandas as pd
 from reviewer.core.values import OPEN, REVIEW_NAMES
 
 SUSPECT_ZONES = ("wrong_side", "inside_margin")
-# pyqtgraph redraws ~100k points in ~0.15 s and 1M in ~1.5 s; 150k keeps a refresh short.
-PROJECTION_LIMIT = 150_000
+# Points drawn at most (see above): 40,000 keep a projection refresh well under a second.
+PROJECTION_LIMIT = 40_000
 BOUNDARY_GRID = 160
 HISTOGRAM_BINS = 40
 
 
 # ---- projection ------------------------------------------------------------------------------
-def downsample_rows(keep: np.ndarray, limit: int, seed: int = 0) -> np.ndarray:
-    """Sorted row positions to draw: every row where ``keep`` is True, then a uniform random
-    sample of the others up to ``limit`` rows in all (never fewer than the kept rows)."""
+def downsample_rows(
+    keep: np.ndarray,
+    limit: int,
+    seed: int = 0,
+    *,
+    always: np.ndarray | None = None,
+    priority: np.ndarray | None = None,
+) -> np.ndarray:
+    """Sorted row positions to draw, at most ``limit`` unless ``always`` alone is more.
+
+    Every row where ``always`` is True; then rows where ``keep`` is True, highest
+    ``priority`` first when they do not all fit (else the first ones); then a uniform random
+    sample of the others up to ``limit`` rows in all.
+    """
     keep = np.asarray(keep, dtype=bool)
     n = len(keep)
     if n <= limit:
         return np.arange(n)
-    must = np.flatnonzero(keep)
-    room = limit - len(must)
+    must = np.zeros(n, dtype=bool) if always is None else np.asarray(always, dtype=bool)
+    chosen = np.flatnonzero(must)
+    room = limit - len(chosen)
     if room <= 0:
-        return must
-    others = np.flatnonzero(~keep)
+        return chosen
+    wanted = np.flatnonzero(keep & ~must)
+    if len(wanted) > room:
+        if priority is not None:
+            score = np.nan_to_num(np.asarray(priority, dtype=float)[wanted], nan=-np.inf)
+            wanted = wanted[np.argsort(-score, kind="stable")[:room]]
+        else:
+            wanted = wanted[:room]
+        return np.sort(np.concatenate([chosen, wanted]))
+    chosen = np.concatenate([chosen, wanted])
+    room = limit - len(chosen)
+    others = np.flatnonzero(~keep & ~must)
     rng = np.random.default_rng(seed)
     extra = rng.choice(others, size=min(room, len(others)), replace=False)
-    return np.sort(np.concatenate([must, extra]))
+    return np.sort(np.concatenate([chosen, extra]))
 
 
 @dataclass
@@ -74,24 +98,28 @@ def projection_points(
     *,
     limit: int = PROJECTION_LIMIT,
     seed: int = 0,
+    score: np.ndarray | None = None,
 ) -> ProjectionPoints:
-    """Points of the 2-D projection: coordinates, class codes, zones and review states."""
+    """Points of the 2-D projection: coordinates, class codes, zones and review states.
+
+    ``score`` (the ranking score, higher = more suspect) decides which suspects are drawn
+    when they do not all fit in ``limit``."""
     n = len(coords)
     labels = np.asarray(labels, dtype=object)
     zones = np.full(n, "", dtype=object) if zones is None else np.asarray(zones, dtype=object)
     review = np.asarray(review)
     suspect = np.isin(zones, SUSPECT_ZONES)
     reviewed = review != OPEN
-    rows = downsample_rows(suspect | reviewed, limit, seed)
+    rows = downsample_rows(suspect, limit, seed, always=reviewed, priority=score)
     # Draw order: plain rows first, then reviewed, then suspects, so the marks stay visible.
     weight = suspect[rows].astype(np.int8) * 2 + reviewed[rows].astype(np.int8)
     rows = rows[np.argsort(weight, kind="stable")]
     present = pd.Series(labels)
     present = present[present.notna()]
     classes = sorted({str(v) for v in pd.unique(present)})
-    code = pd.Categorical(
-        pd.Series(labels[rows]).map(lambda v: None if v is None else str(v)), categories=classes
-    ).codes
+    shown = pd.Series(labels[rows], dtype=object)
+    shown = shown.where(shown.isna(), shown.astype(str))
+    code = pd.Categorical(shown, categories=classes).codes
     return ProjectionPoints(
         rows=rows,
         x=np.asarray(coords[rows, 0], dtype=float),
@@ -109,8 +137,12 @@ def projection_points(
 def session_projection(session: Any, *, limit: int = PROJECTION_LIMIT) -> ProjectionPoints:
     """``projection_points`` for a ReviewSession (latest fit's zones, if any)."""
     coords, variance = session.projection()
-    zones = session.latest.rows["zone"].to_numpy() if session.latest is not None else None
-    return projection_points(coords, variance, session.labels, zones, session.review, limit=limit)
+    latest = session.latest
+    zones = latest.rows["zone"].to_numpy() if latest is not None else None
+    score = latest.rows["score"].to_numpy() if latest is not None else None
+    return projection_points(
+        coords, variance, session.labels, zones, session.review, limit=limit, score=score
+    )
 
 
 # ---- boundary in the projection ------------------------------------------------------------

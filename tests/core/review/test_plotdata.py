@@ -43,12 +43,34 @@ def test_downsampling_keeps_every_suspect_and_reviewed_row_and_caps_the_count() 
     assert pts.suspect[first_suspect:].all()
 
 
-def test_downsampling_keeps_all_kept_rows_even_beyond_the_limit() -> None:
-    keep = np.zeros(1000, dtype=bool)
-    keep[::2] = True
-    rows = plotdata.downsample_rows(keep, limit=100)
-    np.testing.assert_array_equal(rows, np.flatnonzero(keep))
-    np.testing.assert_array_equal(plotdata.downsample_rows(keep, limit=5000), np.arange(1000))
+def test_downsampling_keeps_reviewed_rows_even_beyond_the_limit() -> None:
+    always = np.zeros(1000, dtype=bool)
+    always[::2] = True
+    rows = plotdata.downsample_rows(np.zeros(1000, dtype=bool), limit=100, always=always)
+    np.testing.assert_array_equal(rows, np.flatnonzero(always))
+    np.testing.assert_array_equal(
+        plotdata.downsample_rows(always, limit=5000, always=always), np.arange(1000)
+    )
+
+
+def test_when_suspects_overflow_the_budget_the_most_suspect_are_drawn() -> None:
+    rng = np.random.default_rng(5)
+    n = 100_000
+    zones = np.where(rng.random(n) < 0.3, "wrong_side", "clear").astype(object)
+    score = rng.normal(size=n)
+    review = np.zeros(n, dtype=np.int8)
+    review[:50] = 1  # reviewed rows, whatever their score
+    coords = rng.normal(size=(n, 2))
+    labels = np.full(n, "a", dtype=object)
+    pts = plotdata.projection_points(
+        coords, np.array([0.5, 0.2]), labels, zones, review, limit=5_000, score=score
+    )
+    assert len(pts.rows) == 5_000
+    assert set(range(50)) <= set(pts.rows)
+    suspects = np.flatnonzero((zones == "wrong_side") & (review == 0))
+    top = suspects[np.argsort(-score[suspects])[: 5_000 - 50]]
+    # Every drawn suspect outside the reviewed rows is among the highest-scoring ones.
+    assert set(pts.rows) - set(range(50)) == set(top)
 
 
 def test_histogram_counts_equal_numpy_histogram() -> None:
