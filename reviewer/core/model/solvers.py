@@ -276,10 +276,12 @@ def _newton_step_cg(
     diag_w = 1.0 + _weighted_sq_colsum(xb, cb)
     diag_b = float(cb.sum()) + ridge_b
 
+    xbt = xb.T  # built once: a sparse transpose is a new object each time
+
     def hess(vw: np.ndarray, vb: float) -> tuple[np.ndarray, float]:
         u = np.asarray(xb @ vw).ravel() + vb
         cu = cb * u
-        return vw + np.asarray(xb.T @ cu).ravel(), float(cu.sum()) + ridge_b * vb
+        return vw + np.asarray(xbt @ cu).ravel(), float(cu.sum()) + ridge_b * vb
 
     g_norm = float(np.sqrt(gw @ gw + gb * gb))
     xw, xb_ = np.zeros_like(gw), 0.0
