@@ -187,7 +187,7 @@ def main(argv: list[str] | None = None) -> int:
         sizes, repeats, agree_n, switch = [2000], 1, 400, [(1000, 100), (1000, 400)]
     else:
         sizes, repeats = [20_000, 100_000, 200_000], 1
-        agree_n, switch = 3000, [(5000, 200), (5000, 1000), (5000, 2000)]
+        agree_n, switch = 3000, [(5000, 200), (5000, 1000)]
     data = {
         "smoke": args.smoke,
         "C": C,

@@ -43,24 +43,26 @@ def nearest_neighbours(
 def _sparse_neighbours(
     X: sp.csr_matrix, row: int, pool: np.ndarray, k: int
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Euclidean neighbours on sparse rows from ||x||^2 + ||r||^2 - 2 x.r (one sparse
-    product per candidate, no dense n x d block); the k chosen are then measured exactly.
+    """Euclidean neighbours on sparse rows from ||x||^2 + ||r||^2 - 2 x.r (a pass over the
+    stored values, no dense n x d block); the k chosen are then measured exactly.
 
     On TF-IDF rows (L2-normalised by TfidfVectorizer) d^2 = 2 - 2 cos(x, r), so this is the
     cosine-similarity order that text retrieval uses; with numeric columns beside the text it
     is the same Euclidean distance as on dense features.
     """
-    cand = X[pool]
+    # One pass over the stored values for every row's squared norm and one sparse
+    # matrix-vector product for the dots: no copy of the candidate rows.
+    csum = np.concatenate([[0.0], np.cumsum(X.data * X.data)])
+    sq = (csum[X.indptr[1:]] - csum[X.indptr[:-1]])[pool]
     r = X[row]
-    sq = np.asarray(cand.multiply(cand).sum(axis=1)).ravel()
-    r_sq = float(r.multiply(r).sum())
-    dots = np.asarray((cand @ r.T).toarray()).ravel()
-    dist = np.sqrt(np.maximum(sq + r_sq - 2.0 * dots, 0.0))
+    r_dense = np.asarray(r.toarray()).ravel()  # one row: d floats
+    dots = np.asarray(X @ r_dense).ravel()[pool]
+    dist = np.sqrt(np.maximum(sq + float(r_dense @ r_dense) - 2.0 * dots, 0.0))
     k = min(k, len(pool))
     # Take a few spare rows so that rounding in the expansion cannot swap a near tie out.
     spare = min(len(pool), k + 8)
     part = np.argpartition(dist, spare - 1)[:spare] if spare < len(pool) else np.arange(len(pool))
-    diff = cand[part] - r[np.zeros(len(part), dtype=np.int64)]
+    diff = X[pool[part]] - r[np.zeros(len(part), dtype=np.int64)]
     exact = np.sqrt(np.asarray(diff.multiply(diff).sum(axis=1)).ravel())
     order = np.lexsort((pool[part], exact))[:k]
     return pool[part][order], exact[order]

@@ -119,3 +119,14 @@ def test_cross_val_predict_on_csr_matches_the_dense_copy() -> None:
     # Out-of-fold predictions beat chance (1/3: three balanced classes) on real tweets.
     pred = np.asarray(sorted(set(labels)))[on_sparse.argmax(axis=1)]
     assert (pred == labels).mean() > 0.45
+
+
+def test_exact_rbf_cost_on_sparse_counts_stored_values_not_columns() -> None:
+    X, labels = tweet_tfidf(BINARY, rows=1200, min_df=1)
+    n, d = X.shape
+    # Counted by columns the exact rbf solve would look too costly and be refused on sparse
+    # input; LIBSVM's sparse kernel products cost the stored values per row instead.
+    assert engine.predicted_exact_work(n, d, "rbf", 1.0) > engine.RBF_EXACT_WORK
+    assert engine.cost_features(X) < 50
+    model = SoftMarginClassifier(kernel="rbf", C=1.0).fit(X, labels)
+    assert model.problems_[0].solver.startswith("exact")
