@@ -15,6 +15,10 @@ wins", which picks a large C or a flexible kernel that bends around wrong labels
 
 On sparse features (TF-IDF text) ``auto`` tries the linear kernel only: it is the usual
 choice for text (Joachims 1998), and an rbf fit on text has no fast large-table path here.
+Its C grid there is TEXT_LINEAR_CS = {0.1, 1, 10}: TF-IDF rows have unit length, where
+standardised numeric rows have ||x||^2 near d, so the same C regularises text far more. On
+900 tweets of dslabs' trump_tweets (three posting apps) the numeric grid's one-standard-error
+pick was C = 0.01, where no row was clear of the margin (median slack 0.98).
 """
 
 from __future__ import annotations
@@ -31,14 +35,15 @@ from reviewer.core.model.engine import SoftMarginClassifier, margins_from_decisi
 from reviewer.core.progress import Reporter
 
 LINEAR_CS = (0.01, 0.1, 1.0)
+TEXT_LINEAR_CS = (0.1, 1.0, 10.0)
 RBF_CS = (0.1, 1.0, 10.0, 100.0)
 RBF_GAMMA_FACTORS = (0.25, 1.0, 4.0)
 TUNE_ROWS = 1000
 TUNE_FOLDS = 3
 CURVE_CS = tuple(float(c) for c in np.logspace(-3, 3, 13))
 SPARSE_AUTO_NOTE = (
-    "auto tried the linear kernel only: the features include text (sparse TF-IDF), where the "
-    "linear kernel is the usual choice"
+    "auto tried the linear kernel only, C in {0.1, 1, 10}: the features include text "
+    "(sparse TF-IDF), where the linear kernel is the usual choice"
 )
 
 
@@ -206,7 +211,8 @@ def choose_settings(
     base_gamma = resolve_gamma("scale", Xs)
     grid: list[dict] = []
     if "linear" in kernels:
-        grid.append({"kernel": ["linear"], "C": list(LINEAR_CS)})
+        linear_cs = TEXT_LINEAR_CS if sp.issparse(X) else LINEAR_CS
+        grid.append({"kernel": ["linear"], "C": list(linear_cs)})
     if "rbf" in kernels and rbf_cs:
         grid.append(
             {

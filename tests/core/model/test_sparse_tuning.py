@@ -11,6 +11,7 @@ import numpy as np
 from reviewer.core.model import engine
 from reviewer.core.model.tuning import (
     SPARSE_AUTO_NOTE,
+    TEXT_LINEAR_CS,
     auto_kernels,
     c_curve,
     c_curve_for_labels,
@@ -25,6 +26,8 @@ def test_auto_on_text_tries_the_linear_kernel_only_and_says_so() -> None:
     best, tried = choose_settings(X, y_idx)
     assert best.kernel == "linear"
     assert tried and {c.kernel for c in tried} == {"linear"}
+    # Unit-length TF-IDF rows get the text C grid, not the one for standardised columns.
+    assert sorted(c.C for c in tried) == list(TEXT_LINEAR_CS)
     assert auto_kernels(X) == (("linear",), SPARSE_AUTO_NOTE)
     # Dense features keep the full grid and add no note.
     assert auto_kernels(X.toarray()) == (("linear", "rbf"), None)
