@@ -181,6 +181,7 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--smoke", action="store_true", help="tiny sizes, a few seconds")
     ap.add_argument("--out-dir", type=Path, default=HERE / "results")
+    ap.add_argument("--sizes", default="", help="comma-separated row counts (overrides)")
     args = ap.parse_args(argv)
     args.out_dir.mkdir(parents=True, exist_ok=True)
     if args.smoke:
@@ -188,6 +189,8 @@ def main(argv: list[str] | None = None) -> int:
     else:
         sizes, repeats = [20_000, 100_000, 200_000], 1
         agree_n, switch = 3000, [(5000, 200), (5000, 1000)]
+    if args.sizes:
+        sizes = [int(v) for v in args.sizes.split(",") if int(v) > 0]
     data = {
         "smoke": args.smoke,
         "C": C,

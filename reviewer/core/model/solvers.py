@@ -284,7 +284,7 @@ def _newton_step_cg(
         return vw + np.asarray(xbt @ cu).ravel(), float(cu.sum()) + ridge_b * vb
 
     g_norm = float(np.sqrt(gw @ gw + gb * gb))
-    xw, xb_ = np.zeros_like(gw), 0.0
+    sol_w, sol_b = np.zeros_like(gw), 0.0
     rw, rb = -gw, -gb
     zw, zb = rw / diag_w, rb / diag_b
     pw, pb = zw.copy(), zb
@@ -295,8 +295,8 @@ def _newton_step_cg(
         if php <= 0.0:
             break
         a = rz / php
-        xw += a * pw
-        xb_ += a * pb
+        sol_w += a * pw
+        sol_b += a * pb
         rw -= a * hw
         rb -= a * hb
         if np.sqrt(rw @ rw + rb * rb) <= forcing * g_norm:
@@ -307,11 +307,11 @@ def _newton_step_cg(
         pw = zw + beta * pw
         pb = zb + beta * pb
         rz = rz_new
-    if not np.any(xw) and xb_ == 0.0:
+    if not np.any(sol_w) and sol_b == 0.0:
         # No progress at all (H p . p <= 0 at once cannot happen for this H; guard anyway):
         # fall back to the preconditioned gradient.
         return -gw / diag_w, -gb / diag_b
-    return xw, float(xb_)
+    return sol_w, float(sol_b)
 
 
 def fit_linear_hinge(
