@@ -34,7 +34,7 @@ def column_as_float(values: pd.Series) -> np.ndarray:
     return out
 
 
-class NumericStandardiser(TransformerMixin, BaseEstimator):  # type: ignore[misc]
+class NumericStandardiser(TransformerMixin, BaseEstimator):
     """Standardise numeric columns: bound by the largest magnitude, fill a missing value with
     the column's median, centre and divide by the standard deviation (1 for a constant)."""
 
