@@ -14,6 +14,7 @@ from typing import BinaryIO
 import pandas as pd
 
 from reviewer.core.output.atomic import atomic_write, check_target
+from reviewer.core.output.fastcsv import write_csv
 
 PARQUET_SUFFIXES = (".parquet", ".pq")
 
@@ -47,7 +48,7 @@ def write_scan_table(
         if parquet:
             table.to_parquet(stream, index=False)
         else:
-            stream.write(table.to_csv(index=False).encode("utf-8"))
+            write_csv(table, stream)
 
     return atomic_write(out, write, overwrite=True, protect=protect)
 
