@@ -103,7 +103,7 @@ def fit_margins(
         )
     resolved = settings.to_dict()
     candidates: list[dict] = []
-    Xf = X[fit_rows]
+    Xf = X if len(fit_rows) == n else X[fit_rows]  # every row fitted: no copy
     if settings.kernel == "auto":
         # Bound auto's work: no rbf C whose scan of this table is predicted over the budget.
         rbf_cs = tuple(
@@ -302,7 +302,7 @@ def summarise(
     F_held: np.ndarray | None,
     y_all: np.ndarray,
 ) -> FitSummary:
-    fitted = rows[fit_mask]
+    fitted = rows if fit_mask.all() else rows[fit_mask]
     zone_counts = {z: int((fitted["zone"] == z).sum()) for z in ZONES}
     support_counts = {s: int((fitted["support"] == s).sum()) for s in SUPPORTS}
     fitted_labels = labels[fit_mask].astype(str)
