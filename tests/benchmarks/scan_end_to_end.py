@@ -69,19 +69,45 @@ def write_table(path: Path, n: int, seed: int = 0) -> None:
     writer.close()
 
 
-def run_scan(data: Path, out: Path, code: Path) -> dict:
-    """One scan as a child process: wall seconds and that child's peak RSS."""
+def available_mb() -> float:
+    """MemAvailable from /proc/meminfo (Linux), else infinity."""
+    try:
+        for line in Path("/proc/meminfo").read_text().splitlines():
+            if line.startswith("MemAvailable:"):
+                return int(line.split()[1]) / 1024
+    except OSError:
+        pass
+    return float("inf")
+
+
+def run_scan(data: Path, out: Path, code: Path, keep_free_mb: float = 1500.0) -> dict:
+    """One scan as a child process: wall seconds and that child's peak RSS. The child is
+    stopped if the machine's available memory falls under ``keep_free_mb``."""
     env = {**os.environ, "PYTHONPATH": str(code)}
     cmd = [sys.executable, "-m", "reviewer", "scan", str(data), *SCAN_ARGS, "--out", str(out)]
     started = time.perf_counter()
-    child = subprocess.Popen(cmd, env=env, cwd=code, stderr=subprocess.PIPE)
-    _, status, usage = os.wait4(child.pid, 0)
+    child = subprocess.Popen(cmd, env=env, cwd=code, stderr=subprocess.DEVNULL)
+    lowest = float("inf")
+    while True:
+        pid, status, usage = os.wait4(child.pid, os.WNOHANG)
+        if pid:
+            break
+        lowest = min(lowest, available_mb())
+        if lowest < keep_free_mb:
+            child.kill()
+            os.wait4(child.pid, 0)
+            return {"stopped": f"machine memory under {keep_free_mb:.0f} MiB free"}
+        time.sleep(0.2)
     seconds = time.perf_counter() - started
-    child.returncode = os.waitstatus_to_exitcode(status)
-    err = child.stderr.read().decode() if child.stderr else ""
-    if child.returncode != 0:
-        raise RuntimeError(f"scan failed ({child.returncode}): {err[-2000:]}")
-    return {"seconds": seconds, "peak_rss_mb": usage.ru_maxrss / 1024}
+    code_ = os.waitstatus_to_exitcode(status)
+    child.returncode = code_
+    if code_ != 0:
+        raise RuntimeError(f"scan failed with exit code {code_}: {' '.join(cmd)}")
+    return {
+        "seconds": seconds,
+        "peak_rss_mb": usage.ru_maxrss / 1024,
+        "lowest_available_mb": lowest,
+    }
 
 
 def baseline_fits(data: Path) -> dict:
@@ -220,8 +246,11 @@ def main(argv: list[str] | None = None) -> int:
         if args.huge and not args.smoke:
             big = Path(tmp) / "huge.parquet"
             write_table(big, HUGE_ROWS)
-            record["huge"] = {"rows": HUGE_ROWS, **run_scan(big, out, ROOT)}
-            record["huge"]["parquet_mb"] = big.stat().st_size / 2**20
+            record["huge"] = {"rows": HUGE_ROWS, "parquet_mb": big.stat().st_size / 2**20}
+            try:
+                record["huge"].update(run_scan(big, out, ROOT))
+            except RuntimeError as exc:  # e.g. killed for memory: say so in the table
+                record["huge"]["stopped"] = str(exc)
     record["machine"] = f"{platform.machine()}, {os.cpu_count()} cores, {platform.system()}"
     record["python"] = platform.python_version()
     name = "scan_end_to_end_smoke" if args.smoke else "scan_end_to_end"
@@ -292,7 +321,9 @@ def markdown(r: dict) -> str:
             "",
             f"## {h['rows']:,} rows ({h['parquet_mb']:,.0f} MiB Parquet), once",
             "",
-            f"Scan command: {h['seconds']:.1f} s; peak RSS {h['peak_rss_mb'] / 1024:.2f} GiB.",
+            f"Scan command: {h['seconds']:.1f} s; peak RSS {h['peak_rss_mb'] / 1024:.2f} GiB."
+            if "seconds" in h
+            else f"Scan command stopped: {h['stopped']}.",
         ]
     return "\n".join(lines) + "\n"
 
