@@ -23,8 +23,25 @@ import pyarrow.compute as pc
 _NEEDS_QUOTES = r'[,"\r\n]'
 
 
+def _has_special_bytes(text: pa.Array | pa.ChunkedArray) -> bool:
+    """Whether any cell holds a comma, quote or line break: a byte search over the text."""
+    chunks = text.chunks if isinstance(text, pa.ChunkedArray) else [text]
+    for chunk in chunks:
+        if chunk.type not in (pa.string(), pa.large_string()):
+            chunk = chunk.cast(pa.large_string())
+        if len(chunk) == 0 or chunk.buffers()[2] is None:
+            continue
+        data = bytes(_concatenated(chunk))
+        if any(special in data for special in (b",", b'"', b"\r", b"\n")):
+            return True
+    return False
+
+
 def _quoted(text: pa.Array) -> pa.Array:
     """Text cells, quoted (with doubled inner quotes) where the csv module would quote them."""
+    if not _has_special_bytes(text):
+        return text  # the usual case, found without a pass of the pattern over every cell
+    text = text.cast(pa.string()) if text.type != pa.string() else text
     needs = pc.fill_null(pc.match_substring_regex(text, _NEEDS_QUOTES), False)
     if not pc.any(needs).as_py():
         return text
@@ -33,6 +50,9 @@ def _quoted(text: pa.Array) -> pa.Array:
     )  # '"' + text + '"'
     return pc.if_else(needs, wrapped, text)
 
+
+THREADS = os.cpu_count() or 1
+"""Columns formatted at once (Arrow's kernels let go of the interpreter lock)."""
 
 BLOCK_ROWS = 1_000_000
 """Rows formatted at a time, so the text of a large table is never all in memory at once."""
@@ -51,8 +71,10 @@ def _float_text(values: np.ndarray) -> pa.Array:
 
 def _object_text(values: pd.Series) -> pa.Array:
     try:
-        text = pa.array(values, type=pa.string(), from_pandas=True)
+        text = pa.array(values, from_pandas=True)
     except (pa.ArrowInvalid, pa.ArrowTypeError):  # numbers or other objects among the text
+        text = None
+    if text is None or text.type not in (pa.string(), pa.large_string()):
         text = pa.array(
             [None if v is None or v is pd.NA or v != v else str(v) for v in values],
             type=pa.string(),
@@ -75,23 +97,33 @@ def _writer_of(dtype: object) -> Callable[[pd.Series], pa.Array] | None:
 
 def write_csv(frame: pd.DataFrame, stream: BinaryIO, line_end: str = os.linesep) -> None:
     """Write ``frame`` to ``stream`` as CSV in UTF-8, header first, without its index."""
-    writers = [_writer_of(frame[c].dtype) for c in frame.columns]
-    if not writers or any(w is None for w in writers) or frame.columns.duplicated().any():
+    found = [_writer_of(frame[c].dtype) for c in frame.columns]
+    writers = [w for w in found if w is not None]
+    if not writers or len(writers) < len(found) or frame.columns.duplicated().any():
         stream.write(frame.to_csv(index=False, lineterminator=line_end).encode("utf-8"))
         return
     header = _quoted(pa.array([str(c) for c in frame.columns], type=pa.string()))
     stream.write((",".join(header.to_pylist()) + line_end).encode("utf-8"))
     for start in range(0, len(frame), BLOCK_ROWS):
-        block = frame.iloc[start : start + BLOCK_ROWS]
-        jobs = list(zip(writers, [block[c] for c in frame.columns], strict=True))
-        # Arrow's kernels let go of the interpreter lock: columns format side by side.
-        with ThreadPoolExecutor(max_workers=min(len(jobs), os.cpu_count() or 1)) as pool:
-            cells = list(pool.map(lambda job: pc.fill_null(job[0](job[1]), ""), jobs))
+        block = frame if len(frame) <= BLOCK_ROWS else frame.iloc[start : start + BLOCK_ROWS]
+        columns = [block[c] for c in frame.columns]
+        if THREADS > 1:
+            with ThreadPoolExecutor(max_workers=THREADS) as pool:
+                cells = list(pool.map(_cells, writers, columns))
+        else:
+            cells = [_cells(w, c) for w, c in zip(writers, columns, strict=True)]
         if len(cells) == 1:  # a lone empty cell is quoted, or the line would read as blank
             cells[0] = pc.if_else(pc.equal(cells[0], ""), '""', cells[0])
         cells[-1] = pc.binary_join_element_wise(cells[-1], line_end, "")
         lines = pc.binary_join_element_wise(*cells, ",")
-        stream.write(_concatenated(lines))
+        for chunk in lines.chunks if isinstance(lines, pa.ChunkedArray) else [lines]:
+            stream.write(_concatenated(chunk))
+
+
+def _cells(writer: Callable[[pd.Series], pa.Array], column: pd.Series) -> pa.Array:
+    cells = pc.fill_null(writer(column), "")
+    # One string type for the join (a block's text is far below the 2 GiB of 32-bit offsets).
+    return cells.cast(pa.string()) if cells.type != pa.string() else cells
 
 
 def csv_bytes(frame: pd.DataFrame, line_end: str = os.linesep) -> bytes:
@@ -101,10 +133,8 @@ def csv_bytes(frame: pd.DataFrame, line_end: str = os.linesep) -> bytes:
     return buffer.getvalue()
 
 
-def _concatenated(lines: pa.Array | pa.ChunkedArray) -> memoryview | bytes:
+def _concatenated(lines: pa.Array) -> memoryview | bytes:
     """The bytes of every string of an array without nulls, back to back, without a copy."""
-    if isinstance(lines, pa.ChunkedArray):
-        return b"".join(bytes(_concatenated(chunk)) for chunk in lines.chunks)
     if len(lines) == 0:
         return b""
     width = np.int64 if lines.type == pa.large_string() else np.int32
