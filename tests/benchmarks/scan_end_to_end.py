@@ -349,6 +349,15 @@ def markdown(r: dict) -> str:
             if "seconds" in h
             else f"Scan command stopped: {h['stopped']}.",
         ]
+        lines += [
+            "",
+            "What holds the memory (by array sizes, float64): the loaded table (about 1.6 GB), "
+            "the feature matrix (1.6 GB; the ColumnTransformer stacks a second copy while "
+            "building it), each fold's training and held-out rows copied from it (1.6 GB), "
+            "the solver's per-row vectors, and the text of row ids and labels.",
+        ]
+        if "huge_note" in r:
+            lines += ["", f"({r['huge_note']}.)"]
     return "\n".join(lines) + "\n"
 
 
