@@ -162,7 +162,7 @@ def _one_line(text: str) -> str:
 
 
 def _scan(args: argparse.Namespace) -> int:
-    from reviewer.core.door import check_scan_target, scan_file, write_scan_table
+    from reviewer.core.door import check_scan_target, scan_file, write_scan_stream, write_scan_table
     from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
@@ -194,7 +194,7 @@ def _scan(args: argparse.Namespace) -> int:
     if args.out:
         write_scan_table(table, args.out, protect=[Path(args.data)])
     else:
-        table.to_csv(sys.stdout, index=False)
+        write_scan_stream(table, sys.stdout)
     s = outcome.fit.summary
     used = outcome.fit.settings
     zones = ", ".join(f"{k} {v}" for k, v in s.zone_counts.items())

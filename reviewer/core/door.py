@@ -21,7 +21,12 @@ from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
 from reviewer.core.model.scan import ScanOutcome, scan_table
 from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
 from reviewer.core.output.manifest import manifest_path_for, verify_manifest
-from reviewer.core.output.scantable import check_scan_target, write_scan_table, write_text
+from reviewer.core.output.scantable import (
+    check_scan_target,
+    write_scan_stream,
+    write_scan_table,
+    write_text,
+)
 from reviewer.core.progress import Reporter
 from reviewer.core.review.compare import CAUTION as COMPARISON_CAUTION
 from reviewer.core.review.compare import Comparison, score_on_reference
@@ -93,6 +98,7 @@ __all__ = [
     "slack_histogram",
     "table_from_frame",
     "verify_manifest",
+    "write_scan_stream",
     "write_scan_table",
     "write_text",
 ]

@@ -162,7 +162,11 @@ def looks_like_formula(text: str) -> bool:
 
 def formula_warning(values: Iterable[object], what: str) -> str | None:
     """One warning naming up to three ``values`` that a spreadsheet would run as formulas."""
-    found = sorted({str(v) for v in values if v is not None and looks_like_formula(str(v))})
+    try:
+        distinct: Iterable[object] = set(values)  # a million labels, a handful of values
+    except TypeError:  # unhashable values: look at each
+        distinct = values
+    found = sorted({str(v) for v in distinct if v is not None and looks_like_formula(str(v))})
     if not found:
         return None
     shown = ", ".join(repr(v) for v in found[:3]) + (" ..." if len(found) > 3 else "")

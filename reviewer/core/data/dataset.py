@@ -35,7 +35,7 @@ class Dataset:
 def row_ids(frame: pd.DataFrame, id_column: str | None) -> np.ndarray:
     """The id column as text, else the 0-based data-row position."""
     if id_column is None:
-        return np.arange(len(frame)).astype(str).astype(object)
+        return np.fromiter(map(str, range(len(frame))), dtype=object, count=len(frame))
     return label_strings(frame[id_column])
 
 

@@ -32,27 +32,25 @@ def conflicting_duplicates(
     if not roles.features or len(frame) < 2:
         return []
     features = frame[roles.features].reset_index(drop=True)
-    # Hash with pandas (vectorised); rows in the same hash bucket are then compared by value,
-    # so a hash collision can never join two different rows.
-    keys = pd.util.hash_pandas_object(features, index=False).to_numpy()
-    has_label = np.array([v is not None and not pd.isna(v) for v in labels], dtype=bool)
-    order = np.argsort(keys, kind="stable")
-    sorted_keys = keys[order]
-    starts = np.flatnonzero(np.r_[True, sorted_keys[1:] != sorted_keys[:-1]])
-    ends = np.r_[starts[1:], len(order)]
-    groups: list[list[int]] = []
-    for a, b in zip(starts, ends, strict=True):
-        if b - a < 2:
-            continue
-        rows = [int(r) for r in np.sort(order[a:b]) if has_label[r]]
-        if len(rows) < 2:
-            continue
-        by_value: dict[tuple, list[int]] = {}
-        for r in rows:
-            value = tuple("\0missing" if pd.isna(v) else repr(v) for v in features.iloc[r])
-            by_value.setdefault(value, []).append(r)
-        for members in by_value.values():
-            if len(members) > 1 and len({str(labels[r]) for r in members}) > 1:
-                groups.append(members)
+    labelled = np.flatnonzero(~pd.isna(labels))
+    # Hash with pandas (vectorised): only rows whose hash another labelled row shares can be
+    # duplicates. Those few are then grouped by their values, so a hash collision can never
+    # join two different rows.
+    keys = pd.util.hash_pandas_object(features, index=False).to_numpy()[labelled]
+    shared = pd.Series(keys).duplicated(keep=False).to_numpy()
+    rows = labelled[shared]
+    if len(rows) < 2:
+        return []
+    same = features.iloc[rows]
+    by = [keys[shared], *(same[c].to_numpy() for c in same.columns)]
+    group = same.groupby(by, dropna=False, sort=False).ngroup().to_numpy()
+    texts = labels[rows].astype(str)
+    mixed = pd.Series(texts).groupby(group).nunique().to_numpy() > 1
+    keep = mixed[group]
+    rows, group = rows[keep], group[keep]
+    order = np.lexsort((rows, group))  # by group, rows ascending within each
+    rows, group = rows[order], group[order]
+    starts = np.flatnonzero(np.r_[True, group[1:] != group[:-1]])
+    groups = [part.tolist() for part in np.split(rows, starts[1:])] if len(rows) else []
     groups.sort(key=lambda g: g[0])
     return groups

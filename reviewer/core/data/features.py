@@ -5,15 +5,13 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 from sklearn.compose import ColumnTransformer
-from sklearn.impute import SimpleImputer
 from sklearn.pipeline import Pipeline
 from sklearn.preprocessing import (
     FunctionTransformer,
-    MaxAbsScaler,
     OneHotEncoder,
-    StandardScaler,
 )
 
+from reviewer.core.data.numeric import NumericStandardiser
 from reviewer.core.data.roles import ColumnRoles
 from reviewer.core.errors import InputError
 
@@ -40,16 +38,7 @@ def build_feature_transformer(roles: ColumnRoles) -> ColumnTransformer:
     """Numeric: median-impute then standardise; categorical: one-hot, unknown levels ignored."""
     parts = []
     if roles.numeric:
-        numeric = Pipeline(
-            [
-                ("to_float", FunctionTransformer(_as_float, feature_names_out="one-to-one")),
-                # Values near 1e308 overflow the median and variance; dividing by each
-                # column's largest magnitude first leaves the standardised result unchanged.
-                ("bound", MaxAbsScaler()),
-                ("impute", SimpleImputer(strategy="median", keep_empty_features=True)),
-                ("scale", StandardScaler()),
-            ]
-        )
+        numeric = NumericStandardiser()  # as to_numeric, MaxAbs, median fill, StandardScaler
         parts.append(("numeric", numeric, list(roles.numeric)))
     if roles.categorical:
         categorical = Pipeline(

@@ -8,6 +8,7 @@ from __future__ import annotations
 import csv
 import hashlib
 import io
+import mmap
 import os
 import threading
 import zipfile
@@ -144,6 +145,10 @@ def load_table(
     if p.is_dir():
         raise InputError(f"{p}: is a folder, not a data file")
     try:
+        if _parquet_by_content(p):
+            report(0.05, "reading Parquet")
+            frame, digest = _load_parquet_mapped(p, max_rows)
+            return _loaded(frame, p, "parquet", digest, report)
         raw = p.read_bytes()
     except OSError as exc:
         raise InputError(f"{p}: cannot be read ({exc.strerror or exc})") from exc
@@ -170,6 +175,23 @@ def load_table(
         delimiter = detect_delimiter(text_sample, p)
         frame = _read_delimited(p, raw, encoding, delimiter, report.slice(0.1, 1.0), max_rows)
         used_sheet = None
+    return _loaded(
+        frame, p, kind, digest, report, delimiter, encoding, used_sheet, sheets, compression
+    )
+
+
+def _loaded(
+    frame: pd.DataFrame,
+    p: Path,
+    kind: str,
+    digest: str,
+    report: Reporter,
+    delimiter: str | None = None,
+    encoding: str | None = None,
+    used_sheet: str | None = None,
+    sheets: tuple[str, ...] = (),
+    compression: str | None = None,
+) -> LoadedTable:
     frame = _tidy_columns(frame, p)
     if frame.shape[1] == 0:
         raise InputError(f"{p}: no columns found; is this a table?")
@@ -304,18 +326,53 @@ def _read_delimited(
     return frame.reset_index(drop=True)
 
 
-def _read_parquet(p: Path, raw: bytes, max_rows: int | None = None) -> pd.DataFrame:
-    try:
-        if max_rows is not None:
-            import pyarrow as pa
-            import pyarrow.parquet as pq
+def _parquet_by_content(p: Path) -> bool:
+    """A file that starts with Parquet's magic bytes and is not named as compressed text."""
+    if p.suffix.lower() in COMPRESSED_SUFFIXES:
+        return False
+    with open(p, "rb") as handle:
+        return handle.read(4) == b"PAR1"
 
-            batches = pq.ParquetFile(io.BytesIO(raw)).iter_batches(batch_size=max_rows)
+
+def _load_parquet_mapped(p: Path, max_rows: int | None) -> tuple[pd.DataFrame, str]:
+    """Read a Parquet file through a memory map, fingerprinting it on a second thread
+    meanwhile (both let go of the interpreter lock): the file's bytes are never copied."""
+    import mmap
+
+    with open(p, "rb") as handle:
+        mapped = mmap.mmap(handle.fileno(), 0, access=mmap.ACCESS_READ)
+    digest: list[str] = []
+    hasher = threading.Thread(target=lambda: digest.append(hashlib.sha256(mapped).hexdigest()))
+    hasher.start()
+    try:
+        frame = _read_parquet(p, mapped, max_rows)
+    finally:
+        hasher.join()
+    try:
+        mapped.close()
+    except BufferError:  # a column still points into the file; the map closes with it
+        pass
+    return frame, digest[0]
+
+
+def _read_parquet(p: Path, raw: bytes | mmap.mmap, max_rows: int | None = None) -> pd.DataFrame:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        source = pa.BufferReader(pa.py_buffer(raw))
+        if max_rows is not None:
+            batches = pq.ParquetFile(source).iter_batches(batch_size=max_rows)
             first = next(batches, None)
-            if first is None:
-                return pd.read_parquet(io.BytesIO(raw)).reset_index(drop=True)
-            return pa.Table.from_batches([first]).to_pandas().reset_index(drop=True)
-        return pd.read_parquet(io.BytesIO(raw)).reset_index(drop=True)
+            table = pa.Table.from_batches([first]) if first is not None else None
+        else:
+            table = None
+        if table is None:
+            table = pq.read_table(pa.BufferReader(pa.py_buffer(raw)))
+        # Column by column, freeing Arrow's copy as it goes: one table's memory at a time.
+        frame = table.to_pandas(split_blocks=True, self_destruct=True)
+        del table
+        return frame.reset_index(drop=True)
     except Exception as exc:  # pyarrow raises several unrelated types for damaged files
         raise InputError(f"{p}: damaged or unreadable Parquet file ({_first_line(exc)})") from exc
 
@@ -366,30 +423,32 @@ def _first_line(exc: BaseException) -> str:
 
 
 def label_strings(values: pd.Series) -> np.ndarray:
-    """A label column as text, None where missing; whole-number floats print as integers."""
-    out = np.empty(len(values), dtype=object)
+    """A label column as text, None where missing; whole-number floats print as integers.
+
+    Each distinct value is formatted once (a label column holds few), then spread to its rows."""
     series = values.reset_index(drop=True)
     missing = series.isna().to_numpy()
+    texts: list[str | None]
     if pd.api.types.is_float_dtype(series.dtype):
-        arr = series.to_numpy(dtype=float, na_value=np.nan)
-        finite = np.isfinite(arr)
-        whole = finite & (np.floor(arr) == arr)
-        for i in range(len(arr)):
-            if missing[i]:
-                out[i] = None
-            elif whole[i]:
-                out[i] = str(int(arr[i]))
-            else:
-                out[i] = repr(float(arr[i]))
-        return out
-    texts = series.astype(object).to_numpy()
-    for i in range(len(texts)):
-        if missing[i]:
-            out[i] = None
+        codes, distinct = pd.factorize(series.to_numpy(dtype=float, na_value=np.nan))
+        texts = [
+            str(int(v)) if np.isfinite(v) and np.floor(v) == v else repr(float(v)) for v in distinct
+        ]
+    else:
+        objects = series.astype(object).to_numpy()
+        kind = pd.api.types.infer_dtype(objects, skipna=True)
+        if kind not in ("string", "integer", "boolean", "empty"):
+            # Mixed objects: 1 and 1.0 are equal as keys yet print apart, so go row by row.
+            codes, distinct = np.arange(len(objects)), objects
         else:
-            s = str(texts[i]).strip()
-            out[i] = s if s else None
-    return out
+            codes, distinct = pd.factorize(objects, use_na_sentinel=False)
+        texts = []
+        for v in distinct:  # a missing value's text is never used: its rows take None
+            text = str(v).strip()
+            texts.append(text if text else None)
+    table = np.empty(len(texts) + 1, dtype=object)
+    table[: len(texts)] = texts  # the last entry, None, is what code -1 (missing) takes
+    return table[np.where(missing, -1, codes)]
 
 
 def table_from_frame(frame: pd.DataFrame, name: str = "<DataFrame>") -> LoadedTable:

@@ -138,15 +138,19 @@ def infer_kind(values: pd.Series) -> tuple[str, str]:
         return ("numeric", "") if present.nunique() > 1 else ("ignore", "constant")
     if s.dtype == object and isinstance(present.iloc[0], (list, tuple, np.ndarray, dict)):
         return "ignore", "a list or record per row (vector columns are not features yet)"
-    n_unique = present.nunique()
-    if n_unique <= 1:
-        return "ignore", "constant"
     if pd.api.types.is_numeric_dtype(s.dtype):
-        if pd.api.types.is_integer_dtype(s.dtype) and n_unique == n and n > 20:
-            arr = present.to_numpy()
+        # Without counting distinct values (slow on a million floats): constant when the
+        # least equals the greatest; distinct and ordered when strictly monotonic.
+        arr = present.to_numpy()
+        if arr.min() == arr.max():
+            return "ignore", "constant"
+        if pd.api.types.is_integer_dtype(s.dtype) and n_present == n and n > 20:
             if np.all(np.diff(arr) > 0) or np.all(np.diff(arr) < 0):
                 return "ignore", "identifier-like (distinct, ordered whole numbers)"
         return "numeric", ""
+    n_unique = present.nunique()
+    if n_unique <= 1:
+        return "ignore", "constant"
     as_num = pd.to_numeric(present.astype(str).str.strip(), errors="coerce")
     if as_num.notna().mean() >= NUMERIC_SHARE:
         return "numeric", ""

@@ -72,7 +72,7 @@ def fit_margins(
     if X.shape[0] != n:
         raise InputError(f"feature matrix has {X.shape[0]} rows but there are {n} labels")
     labels = np.asarray(labels, dtype=object)
-    has_label = np.array([v is not None for v in labels], dtype=bool)
+    has_label = np.asarray(labels != None, dtype=bool)  # noqa: E711 (elementwise)
     fit_mask = has_label.copy()
     if excluded is not None:
         fit_mask &= ~np.asarray(excluded, dtype=bool)
@@ -103,7 +103,7 @@ def fit_margins(
         )
     resolved = settings.to_dict()
     candidates: list[dict] = []
-    Xf = X[fit_rows]
+    Xf = X if len(fit_rows) == n else X[fit_rows]  # every row fitted: no copy
     if settings.kernel == "auto":
         # Bound auto's work: no rbf C whose scan of this table is predicted over the budget.
         rbf_cs = tuple(
@@ -191,7 +191,10 @@ def fit_margins(
 
     # Class index of every labelled row; -1 where unlabelled or a class the fit never saw.
     lookup = {c: i for i, c in enumerate(classes)}
-    y_all = np.array([lookup.get(str(v), -1) if v is not None else -1 for v in labels])
+    codes, distinct = pd.factorize(labels, use_na_sentinel=False)
+    y_all = np.array(
+        [-1 if v is None else lookup.get(str(v), -1) for v in distinct], dtype=np.int64
+    )[codes]
     F = np.empty((n, len(classes)))
     F[fit_rows] = model.training_decision()
     others = np.flatnonzero(~fit_mask)
@@ -299,10 +302,11 @@ def summarise(
     F_held: np.ndarray | None,
     y_all: np.ndarray,
 ) -> FitSummary:
-    fitted = rows[fit_mask]
+    fitted = rows if fit_mask.all() else rows[fit_mask]
     zone_counts = {z: int((fitted["zone"] == z).sum()) for z in ZONES}
     support_counts = {s: int((fitted["support"] == s).sum()) for s in SUPPORTS}
-    class_counts = {str(c): int(np.sum(labels[fit_mask].astype(str) == c)) for c in classes}
+    fitted_labels = labels[fit_mask].astype(str)
+    class_counts = {str(c): int(np.sum(fitted_labels == c)) for c in classes}
     problems = problem_summaries(model)
     out = FitSummary(
         n_rows=len(rows),

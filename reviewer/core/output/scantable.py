@@ -9,11 +9,12 @@ from __future__ import annotations
 import os
 from collections.abc import Iterable
 from pathlib import Path
-from typing import BinaryIO
+from typing import Any, BinaryIO
 
 import pandas as pd
 
 from reviewer.core.output.atomic import atomic_write, check_target
+from reviewer.core.output.fastcsv import write_csv
 
 PARQUET_SUFFIXES = (".parquet", ".pq")
 
@@ -47,9 +48,21 @@ def write_scan_table(
         if parquet:
             table.to_parquet(stream, index=False)
         else:
-            stream.write(table.to_csv(index=False).encode("utf-8"))
+            write_csv(table, stream)
 
     return atomic_write(out, write, overwrite=True, protect=protect)
+
+
+def write_scan_stream(table: pd.DataFrame, stream: Any) -> None:
+    """The scan table as CSV on an open stream (standard output): its bytes where it has a
+    binary buffer, else text."""
+    binary = getattr(stream, "buffer", None)
+    if binary is None:
+        stream.write(table.to_csv(index=False))
+        return
+    stream.flush()
+    write_csv(table, binary)
+    binary.flush()
 
 
 def write_text(

@@ -215,3 +215,24 @@ def test_a_preview_reads_only_the_leading_rows_of_each_format(tmp_path: Path) ->
         # The fingerprint is the whole file's, the same as a full load's.
         assert head.source.sha256 == load_table(path).source.sha256
         assert len(load_table(path).frame) == n
+
+
+def test_parquet_reads_as_pandas_does_with_the_files_sha256(tmp_path: Path) -> None:
+    frame = pd.DataFrame(
+        {
+            "text": ["a", None, 'ç, "q"'],
+            "count": pd.array([1, None, 3], dtype="Int64"),
+            "x": [0.1, np.nan, 1e308],
+            "flag": [True, False, True],
+            "when": pd.to_datetime(["2024-01-01", None, "2024-03-05"]),
+            "level": pd.Categorical(["lo", "hi", "lo"]),
+        },
+        index=[10, 11, 12],
+    )
+    path = tmp_path / "t.parquet"
+    frame.to_parquet(path)
+    loaded = load_table(path)
+    # pandas' own reader is the reference for the columns and their types.
+    pd.testing.assert_frame_equal(loaded.frame, pd.read_parquet(path).reset_index(drop=True))
+    # SHA-256 as computed by Python's hashlib (FIPS 180-4).
+    assert loaded.source.sha256 == hashlib.sha256(path.read_bytes()).hexdigest()
