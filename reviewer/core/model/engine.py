@@ -82,8 +82,8 @@ class BinaryFit:
     _estimator: Any = field(default=None, repr=False)
 
     def decision_function(self, X: np.ndarray) -> np.ndarray:
-        if self.w is not None and self._estimator is None:
-            return X @ self.w + self.intercept
+        if self.w is not None:
+            return np.asarray(X @ self.w, dtype=float).ravel() + self.intercept
         return _chunked(self._estimator.decision_function, X)
 
 
@@ -159,17 +159,20 @@ def fit_binary(
     solver: str = "auto",
     tol: float = 1e-4,
     max_iter: int | None = None,
+    init: tuple[np.ndarray, float] | None = None,
 ) -> BinaryFit:
     """Fit one soft-margin problem exactly (LIBSVM) or, for large n, approximately.
 
     ``max_iter`` caps LIBSVM's iterations (None: the module's MAX_ITER, -1: no cap).
+    ``init`` is a (w, b) starting point for the primal linear solver; the exact dual and the
+    Nystroem path ignore it.
     """
     n = len(ypm)
     s = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
     if solver == "auto":
         solver = choose_solver(n, X.shape[1], kernel, C)
     if kernel in ("linear", "rbf") and solver == "approximate":
-        return fit_binary_large(X, ypm, C, kernel=kernel, gamma=gamma, sample_weight=s)
+        return fit_binary_large(X, ypm, C, kernel=kernel, gamma=gamma, sample_weight=s, init=init)
     svc = SVC(
         kernel=kernel,
         C=C,
@@ -187,8 +190,12 @@ def fit_binary(
     alpha = np.zeros(n)
     alpha[svc.support_] = np.abs(svc.dual_coef_[0])
     # SVC orders classes as [-1, +1]; its decision is positive for +1.
-    f = np.asarray(svc.decision_function(X), dtype=float)
     b = float(svc.intercept_[0])
+    if kernel == "linear":
+        # x.w + b is the same value as LIBSVM's sum over support vectors, in one pass.
+        f = np.asarray(X @ np.asarray(svc.coef_[0], dtype=float), dtype=float).ravel() + b
+    else:
+        f = np.asarray(svc.decision_function(X), dtype=float)
     # ||w||^2 = sum_i alpha_i y_i (f_i - b), exact when sum alpha_i y_i = 0; needs no kernel matrix.
     w_sq = max(float(np.sum(alpha * ypm * (f - b))), 0.0)
     hinge = np.maximum(0.0, 1.0 - ypm * f)
@@ -239,6 +246,7 @@ def fit_binary_large(
     kernel: str,
     gamma: float,
     sample_weight: np.ndarray,
+    init: tuple[np.ndarray, float] | None = None,
 ) -> BinaryFit:
     """Large-n path. Linear: the same hinge-loss objective solved in the primal to a certified
     relative gap of 1e-3 (solvers.fit_linear_hinge). Rbf: a landmark Nystroem map with the
@@ -247,7 +255,7 @@ def fit_binary_large(
 
     upper = C * sample_weight
     if kernel == "linear":
-        res = solvers.fit_linear_hinge(X, ypm, C, sample_weight=sample_weight)
+        res = solvers.fit_linear_hinge(X, ypm, C, sample_weight=sample_weight, init=init)
         f = X @ res.w + res.b
         return BinaryFit(
             alpha=np.asarray(res.alpha, dtype=float),
@@ -319,7 +327,10 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
         y: np.ndarray,
         sample_weight: np.ndarray | None = None,
         report: Reporter | None = None,
+        init: dict[int, tuple[np.ndarray, float]] | None = None,
     ) -> SoftMarginClassifier:
+        """Fit one problem per class; ``init`` maps a class position (the positive class's
+        index in ``classes_``) to a (w, b) starting point for the primal linear solver."""
         report = report or Reporter()
         if self.kernel not in KERNELS:
             raise SettingsError(f"kernel {self.kernel!r} is not one of {', '.join(KERNELS)}")
@@ -357,6 +368,7 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
                     degree=self.degree,
                     sample_weight=weight,
                     solver=self.solver,
+                    init=None if init is None else init.get(int(cls)),
                 )
             )
         report(1.0, "fitted")
