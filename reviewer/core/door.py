@@ -262,4 +262,6 @@ def c_curve_job(
         class_weight=st.class_weight,
         folds=int(st.folds) if st.folds else 5,
         seed=int(st.seed),
+        jobs=getattr(session, "jobs", None),
+        cluster=getattr(session, "cluster", None),
     )

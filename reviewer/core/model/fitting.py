@@ -132,6 +132,8 @@ def fit_margins(
             seed=settings.seed,
             rbf_cs=rbf_cs,
             report=report.slice(0.0, 0.3),
+            jobs=jobs,
+            cluster=cluster,
         )
         resolved.update(kernel=best.kernel, C=best.C, gamma=best.gamma if best.gamma else "scale")
         candidates = [c.as_dict() for c in tried]
