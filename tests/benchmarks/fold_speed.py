@@ -78,6 +78,10 @@ def load_note() -> str:
 
 
 # ---- a local Dask cluster -----------------------------------------------------------------
+SCHEDULER = [sys.executable, "-m", "distributed.cli.dask_scheduler"]
+WORKER = [sys.executable, "-m", "distributed.cli.dask_worker"]
+
+
 @contextmanager
 def local_cluster(workers: int = 2):
     with socket.socket() as s:
@@ -90,16 +94,14 @@ def local_cluster(workers: int = 2):
     try:
         procs.append(
             subprocess.Popen(
-                [sys.executable, "-m", "distributed.cli.dask_scheduler", "--host", "127.0.0.1"]
-                + ["--port", str(port), "--no-dashboard"],
+                [*SCHEDULER, "--host", "127.0.0.1", "--port", str(port), "--no-dashboard"],
                 **quiet,
             )
         )
         for _ in range(workers):
             procs.append(
                 subprocess.Popen(
-                    [sys.executable, "-m", "distributed.cli.dask_worker", address]
-                    + ["--nworkers", "1", "--nthreads", "1", "--no-dashboard"],
+                    [*WORKER, address, "--nworkers", "1", "--nthreads", "1", "--no-dashboard"],
                     **quiet,
                 )
             )
@@ -201,7 +203,9 @@ def curve_rows(name: str, X, labels, kernel: str, gammas_old: int, repeats: int)
             lambda jobs=jobs: tuning.c_curve(Xs, ys, kernel=kernel, gammas=gammas, jobs=jobs),
             repeats,
         )
-        diff = max(abs(a.balanced_accuracy - b.balanced_accuracy) for a, b in zip(old, new))
+        diff = max(
+            abs(a.balanced_accuracy - b.balanced_accuracy) for a, b in zip(old, new, strict=True)
+        )
         out.append(
             dict(
                 case=name,
