@@ -294,6 +294,46 @@ def auto_row(n: int, repeats: int) -> dict:
     return row
 
 
+def first_call(backend: str, n: int, jobs: int) -> float:
+    """Seconds of one scan-like fit_margins call in a fresh process, as the command runs it:
+    a process pool's start-up is paid here, not hidden by the workers of an earlier call."""
+    out = subprocess.run(
+        [sys.executable, __file__, "--first-call", backend, str(n), str(jobs)],
+        capture_output=True,
+        text=True,
+        check=True,
+        env={**os.environ, "PYTHONPATH": str(ROOT)},
+    )
+    return float(out.stdout.strip().splitlines()[-1])
+
+
+def first_call_rows(n: int, repeats: int) -> list[dict]:
+    rows = []
+    base = statistics.median(first_call("threading", n, 1) for _ in range(repeats))
+    rows.append(
+        dict(
+            case=f"{n:,} x {D}, 2 classes, linear C=1, fresh process",
+            mode="jobs=1 (baseline)",
+            seconds=base,
+            ratio=1.0,
+            diff=0.0,
+        )
+    )
+    for backend in ("threading", "loky"):
+        t = statistics.median(first_call(backend, n, 2) for _ in range(repeats))
+        rows.append(
+            dict(
+                case=f"{n:,} x {D}, 2 classes, linear C=1, fresh process",
+                mode=f"jobs=2 {backend}",
+                seconds=t,
+                ratio=t / base,
+                diff=0.0,
+            )
+        )
+        print(rows[-1], flush=True)
+    return rows
+
+
 def cluster_available() -> bool:
     try:
         import distributed  # noqa: F401
@@ -308,7 +348,18 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--out-dir", default=str(HERE / "results"))
     ap.add_argument("--no-cluster", action="store_true")
     ap.add_argument("--max-rows", type=int, default=1_000_000)
+    ap.add_argument(
+        "--first-call", nargs=3, metavar=("BACKEND", "ROWS", "JOBS"), help=argparse.SUPPRESS
+    )
     args = ap.parse_args(argv)
+    if args.first_call:
+        backend, n, jobs = args.first_call[0], int(args.first_call[1]), int(args.first_call[2])
+        X, labels = table(n, k=2)
+        parallel.LOCAL_BACKEND = backend
+        t = time.perf_counter()
+        fitting.fit_margins(X, labels, FitSettings(kernel="linear", C=1.0, folds=5), jobs=jobs)
+        print(time.perf_counter() - t)
+        return 0
     out_dir = Path(args.out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     repeats = 1 if args.smoke else 3
@@ -340,6 +391,7 @@ def main(argv: list[str] | None = None) -> int:
                 address,
                 loky=n <= 100_000,
             )
+    folds += first_call_rows(20_000 if args.smoke else 100_000, repeats)
     curves += curve_rows(f"demo {len(yd):,} rows", Xd, yd, "linear", 1, repeats)
     curves += curve_rows(f"demo {len(yd):,} rows", Xd, yd, "rbf", 1, 1 if args.smoke else repeats)
     if not args.smoke:
