@@ -38,6 +38,8 @@ def scan(
     seed: int = 0,
     roles: Mapping[str, str] | None = None,
     progress: Progress | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> pd.DataFrame:
     """Rank every row of ``data`` by how strongly a soft-margin model disagrees with its label.
 
@@ -45,10 +47,13 @@ def scan(
     (``row_id, label, model_label, margin, slack, heldout_margin, heldout_slack, alpha,
     zone, support, score, rank``), one row per input row in input order; a DataFrame keeps
     its index. ``roles`` maps a column to ``numeric``, ``categorical`` or ``ignore``;
-    ``progress(fraction, message)`` is called during the work. The ranking suggests; a
-    person decides.
+    ``progress(fraction, message)`` is called during the work. ``jobs`` runs the held-out
+    folds on that many cores (default: all usable), ``cluster`` on the workers of a Dask
+    scheduler (``"tcp://HOST:PORT"``, needs ``margin-reviewer[cluster]``); neither changes
+    the result. The ranking suggests; a person decides.
     """
     settings = _settings("scan", kernel=kernel, C=C, gamma=gamma, folds=folds, seed=seed)
+    jobs, cluster = _where("scan", jobs, cluster)
     loaded, index = _load("scan", data)
     _check_columns("scan", loaded.frame, label, id, roles)
     outcome = door.scan_loaded(
@@ -58,6 +63,8 @@ def scan(
         settings=settings,
         overrides=dict(roles or {}),
         progress=_progress("scan", progress),
+        jobs=jobs,
+        cluster=cluster,
     )
     table = outcome.table
     if index is not None:
@@ -78,14 +85,18 @@ def probe(
     seed: int = 0,
     roles: Mapping[str, str] | None = None,
     progress: Progress | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> door.ProbeResult:
     """Plant ``rate`` label flips in a copy of ``data`` and measure how many the ranking finds.
 
     The result has ``top`` (recall at the top 5/10/20% of the ranking), ``auroc``,
     ``average_precision``, the planted rows and ``to_dict()`` for JSON. It measures the
-    recovery of planted flips, not of the errors already in the data.
+    recovery of planted flips, not of the errors already in the data. ``jobs`` and
+    ``cluster`` are as in `scan`.
     """
     settings = _settings("probe", kernel=kernel, C=C, gamma=gamma, folds=folds, seed=seed)
+    jobs, cluster = _where("probe", jobs, cluster)
     if not isinstance(rate, Real) or isinstance(rate, bool) or not 0 < float(rate) < 0.5:
         raise SettingsError(
             f"probe(): argument 'rate' must be a number above 0 and below 0.5, got {rate!r}"
@@ -101,6 +112,8 @@ def probe(
         seed=seed,
         overrides=dict(roles or {}),
         progress=_progress("probe", progress),
+        jobs=jobs,
+        cluster=cluster,
     )
 
 
@@ -125,6 +138,26 @@ def _settings(fn: str, *, kernel: Any, C: Any, gamma: Any, folds: Any, seed: Any
             folds=folds,
             seed=seed,
         ).validate()
+    except SettingsError as exc:
+        raise SettingsError(f"{fn}(): {exc}") from None
+
+
+def _where(fn: str, jobs: Any, cluster: Any) -> tuple[int | None, str | None]:
+    """Where the folds run: ``jobs`` a whole number >= 1 (None: every usable core),
+    ``cluster`` None or a Dask scheduler address."""
+    if jobs is not None and (isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 1):
+        raise SettingsError(
+            f"{fn}(): argument 'jobs' must be a whole number of at least 1 or None, got {jobs!r}"
+        )
+    if cluster is None:
+        return jobs, None
+    if not isinstance(cluster, str):
+        raise SettingsError(
+            f"{fn}(): argument 'cluster' must be an address such as 'tcp://10.0.0.5:8786', "
+            f"got {type(cluster).__name__}"
+        )
+    try:
+        return jobs, door.check_address(cluster)
     except SettingsError as exc:
         raise SettingsError(f"{fn}(): {exc}") from None
 

@@ -41,6 +41,32 @@ def _positive_float(text: str) -> float:
     return value
 
 
+def _jobs(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"must be at least 1, got {value}")
+    return value
+
+
+def _add_where(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--jobs",
+        type=_jobs,
+        default=None,
+        help="run the held-out folds on N cores at once (default: every usable core); "
+        "the results are the same for any N",
+    )
+    p.add_argument(
+        "--cluster",
+        metavar="tcp://HOST:PORT",
+        help="run the held-out folds on the workers of this Dask scheduler "
+        "(needs margin-reviewer[cluster]); the results are the same as on one machine",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(
         prog="margin-reviewer",
@@ -71,6 +97,7 @@ def build_parser() -> argparse.ArgumentParser:
     p_scan.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
     p_scan.add_argument("--score", choices=["heldout", "training"], default="heldout")
     p_scan.add_argument("--seed", type=int, default=0)
+    _add_where(p_scan)
     p_scan.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
     p_scan.add_argument("--summary", help="also write the run's summary as JSON to this file")
     p_scan.add_argument(
@@ -102,6 +129,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--C", dest="C", type=_positive_float, default=None, help="penalty C (default: auto)"
     )
     p_probe.add_argument("--folds", type=int, default=5, help="held-out folds; 0 turns it off")
+    _add_where(p_probe)
     p_probe.add_argument("--out", help="also write the result as JSON to this file")
     p_probe.add_argument("--sheet", help="the workbook sheet to read (default: the first)")
     p_probe.add_argument("--quiet", action="store_true", help="no progress bar on standard error")
@@ -162,7 +190,13 @@ def _one_line(text: str) -> str:
 
 
 def _scan(args: argparse.Namespace) -> int:
-    from reviewer.core.door import check_scan_target, scan_file, write_scan_stream, write_scan_table
+    from reviewer.core.door import (
+        check_address,
+        check_scan_target,
+        scan_file,
+        write_scan_stream,
+        write_scan_table,
+    )
     from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
@@ -176,6 +210,7 @@ def _scan(args: argparse.Namespace) -> int:
         seed=args.seed,
         score=args.score,
     ).validate()
+    cluster = check_address(args.cluster) if args.cluster else None
     if args.out:
         check_scan_target(args.out, protect=[Path(args.data)])
     if args.summary:
@@ -189,6 +224,8 @@ def _scan(args: argparse.Namespace) -> int:
             treat_as_classes=args.treat_as_classes,
             sheet=args.sheet,
             progress=progress,
+            jobs=args.jobs,
+            cluster=cluster,
         )
     table = outcome.table
     if args.out:
@@ -301,13 +338,20 @@ def _column_lines(roles: object) -> list[str]:
 def _probe(args: argparse.Namespace) -> int:
     import json
 
-    from reviewer.core.door import check_scan_target, format_probe, probe_file, write_text
+    from reviewer.core.door import (
+        check_address,
+        check_scan_target,
+        format_probe,
+        probe_file,
+        write_text,
+    )
     from reviewer.core.values import FitSettings
 
     started = time.perf_counter()
     settings = FitSettings(
         kernel=args.kernel, C=args.C, folds=args.folds, seed=args.seed
     ).validate()
+    cluster = check_address(args.cluster) if args.cluster else None
     if args.out:
         check_scan_target(args.out, protect=[Path(args.data)])
     with _progress_bar(args) as progress:
@@ -321,6 +365,8 @@ def _probe(args: argparse.Namespace) -> int:
             treat_as_classes=args.treat_as_classes,
             sheet=args.sheet,
             progress=progress,
+            jobs=args.jobs,
+            cluster=cluster,
         )
     sys.stdout.write(format_probe(result) + "\n")
     if args.out:

@@ -17,6 +17,7 @@ import pandas as pd
 from reviewer.core.data.loading import LoadedTable, load_table, table_from_frame
 from reviewer.core.data.roles import KINDS
 from reviewer.core.model.engine import SoftMarginClassifier
+from reviewer.core.model.parallel import check_address, resolve_jobs, usable_cores
 from reviewer.core.model.probe import ProbeResult, format_probe, probe_table
 from reviewer.core.model.scan import ScanOutcome, scan_table
 from reviewer.core.model.tuning import CURVE_CS, c_curve_for_labels
@@ -76,6 +77,7 @@ __all__ = [
     "TablePreview",
     "boundary_in_projection",
     "c_curve_job",
+    "check_address",
     "check_scan_target",
     "compare",
     "curve_series",
@@ -89,6 +91,7 @@ __all__ = [
     "probe_file",
     "probe_loaded",
     "read_reference",
+    "resolve_jobs",
     "row_mask",
     "scan_file",
     "scan_loaded",
@@ -97,6 +100,7 @@ __all__ = [
     "slack_above",
     "slack_histogram",
     "table_from_frame",
+    "usable_cores",
     "verify_manifest",
     "write_scan_stream",
     "write_scan_table",
@@ -113,8 +117,14 @@ def scan_file(
     treat_as_classes: bool = False,
     sheet: str | None = None,
     progress: Callable[[float, str], None] | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> ScanOutcome:
-    """Load a table and rank its rows: the ``scan`` command's work."""
+    """Load a table and rank its rows: the ``scan`` command's work.
+
+    ``jobs`` (default: every usable core) and ``cluster`` (a Dask scheduler address,
+    tcp://HOST:PORT) say where the held-out folds run; the results do not depend on them.
+    """
     report = Reporter(progress)
     loaded = load_table(data, sheet=sheet, progress=report.slice(0.0, 0.1))
     return scan_loaded(
@@ -124,6 +134,8 @@ def scan_file(
         settings=settings,
         treat_as_classes=treat_as_classes,
         progress=report.slice(0.1, 1.0),
+        jobs=jobs,
+        cluster=cluster,
     )
 
 
@@ -138,6 +150,8 @@ def probe_file(
     treat_as_classes: bool = False,
     sheet: str | None = None,
     progress: Callable[[float, str], None] | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> ProbeResult:
     """Load a table, plant known flips in a copy and measure how many the ranking finds."""
     report = Reporter(progress)
@@ -151,6 +165,8 @@ def probe_file(
         seed=seed,
         treat_as_classes=treat_as_classes,
         progress=report.slice(0.1, 1.0),
+        jobs=jobs,
+        cluster=cluster,
     )
 
 
@@ -163,6 +179,8 @@ def scan_loaded(
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
     progress: Callable[[float, str], None] | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> ScanOutcome:
     """Rank the rows of a table already loaded (from a file or a DataFrame)."""
     return scan_table(
@@ -173,6 +191,8 @@ def scan_loaded(
         overrides=overrides,
         treat_as_classes=treat_as_classes,
         progress=progress,
+        jobs=jobs,
+        cluster=cluster,
     )
 
 
@@ -187,6 +207,8 @@ def probe_loaded(
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
     progress: Callable[[float, str], None] | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> ProbeResult:
     """The probe on a table already loaded."""
     return probe_table(
@@ -199,6 +221,8 @@ def probe_loaded(
         overrides=overrides,
         treat_as_classes=treat_as_classes,
         progress=progress,
+        jobs=jobs,
+        cluster=cluster,
     )
 
 
@@ -244,4 +268,6 @@ def c_curve_job(
         class_weight=st.class_weight,
         folds=int(st.folds) if st.folds else 5,
         seed=int(st.seed),
+        jobs=getattr(session, "jobs", None),
+        cluster=getattr(session, "cluster", None),
     )

@@ -349,6 +349,7 @@ class MainWindow(QMainWindow):
         if s is None or self.fits.is_running:
             return
         try:
+            s.cluster = self.settings_panel.cluster_address()  # where, not what: not a setting
             self.fits.start(s, settings or self.settings_panel.settings())
         except ReviewerError as exc:
             self._error(str(exc))

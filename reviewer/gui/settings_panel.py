@@ -15,6 +15,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from reviewer.core import door
 from reviewer.core.errors import SettingsError
 from reviewer.core.values import KERNELS, SCORES, FitSettings
 from reviewer.gui.help_text import ranking_words
@@ -57,6 +58,14 @@ class SettingsPanel(QWidget):
         form.addRow("Class weights", self.weights)
         form.addRow("Folds", self.folds)
         form.addRow("Rank by", self.score)
+        self.cluster = QLineEdit("")
+        self.cluster.setObjectName("cluster_address")
+        self.cluster.setPlaceholderText("this computer")
+        self.cluster.setToolTip(
+            "A Dask scheduler (tcp://HOST:PORT) to run the held-out folds on; empty runs them "
+            "on this computer's cores. The results are the same either way."
+        )
+        form.addRow("Cluster address", self.cluster)
         layout.addLayout(form)
         self.used = QLabel("")
         self.used.setObjectName("hint")
@@ -118,6 +127,11 @@ class SettingsPanel(QWidget):
             score=str(self.score.currentData()),
             solver=base.solver,
         ).validate()
+
+    def cluster_address(self) -> str | None:
+        """The cluster address typed, or None for this computer; SettingsError if malformed."""
+        text = self.cluster.text().strip()
+        return door.check_address(text) if text else None
 
     def show_used(self, used: FitSettings | None) -> None:
         """Show what the latest fit actually used (auto resolved)."""

@@ -243,3 +243,19 @@ def test_a_formula_like_new_label_is_told_to_the_reviewer_once(qtbot, tmp_path):
     assert len(told) == 1
     win.relabel_to("+again")
     assert len([m for m in win.reporter.messages if "spreadsheet formula" in m]) == 1
+
+
+def test_a_malformed_cluster_address_is_told_and_no_fit_starts(qtbot, tmp_path):
+    win = make_window(qtbot, open_demo(tmp_path))
+    s = win.session
+    before = s.latest
+    win.settings_panel.cluster.setText("scheduler:8786")
+    qtbot.keyClick(win.table, Qt.Key.Key_F5)
+    assert not win.runner.is_running and s.latest is before
+    told = [m for m in win.reporter.messages if "scheduler:8786" in m]
+    assert len(told) == 1 and "tcp://" in told[0]
+    # Emptied again, the fit runs on this computer.
+    win.settings_panel.cluster.setText("")
+    qtbot.keyClick(win.table, Qt.Key.Key_F5)
+    qtbot.waitUntil(lambda: not win.runner.is_running, timeout=120_000)
+    assert s.cluster is None and s.latest is not before

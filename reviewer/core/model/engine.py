@@ -84,7 +84,7 @@ class BinaryFit:
 
     def decision_function(self, X: np.ndarray | sp.spmatrix) -> np.ndarray:
         """f(x) for the rows of X (dense, or scipy.sparse CSR)."""
-        if self.w is not None and self._estimator is None:
+        if self.w is not None:
             return np.asarray(X @ self.w, dtype=float).ravel() + self.intercept
         return _chunked(self._estimator.decision_function, X)
 
@@ -185,10 +185,13 @@ def fit_binary(
     solver: str = "auto",
     tol: float = 1e-4,
     max_iter: int | None = None,
+    init: tuple[np.ndarray, float] | None = None,
 ) -> BinaryFit:
     """Fit one soft-margin problem exactly (LIBSVM) or, for large n, approximately.
 
     ``max_iter`` caps LIBSVM's iterations (None: the module's MAX_ITER, -1: no cap).
+    ``init`` is a (w, b) starting point for the primal linear solver; the exact dual and the
+    Nystroem path ignore it.
     """
     n = len(ypm)
     s = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
@@ -203,7 +206,7 @@ def fit_binary(
             f"use the linear kernel (the usual choice for text) or a sample of the rows"
         )
     if kernel in ("linear", "rbf") and solver == "approximate":
-        return fit_binary_large(X, ypm, C, kernel=kernel, gamma=gamma, sample_weight=s)
+        return fit_binary_large(X, ypm, C, kernel=kernel, gamma=gamma, sample_weight=s, init=init)
     svc = SVC(
         kernel=kernel,
         C=C,
@@ -223,8 +226,12 @@ def fit_binary(
     dual_coef = svc.dual_coef_.toarray() if sp.issparse(svc.dual_coef_) else svc.dual_coef_
     alpha[svc.support_] = np.abs(dual_coef[0])
     # SVC orders classes as [-1, +1]; its decision is positive for +1.
-    f = np.asarray(svc.decision_function(X), dtype=float)
     b = float(svc.intercept_[0])
+    if kernel == "linear":
+        # x.w + b is the same value as LIBSVM's sum over support vectors, in one pass.
+        f = np.asarray(X @ np.asarray(svc.coef_[0], dtype=float), dtype=float).ravel() + b
+    else:
+        f = np.asarray(svc.decision_function(X), dtype=float)
     # ||w||^2 = sum_i alpha_i y_i (f_i - b), exact when sum alpha_i y_i = 0; needs no kernel matrix.
     w_sq = max(float(np.sum(alpha * ypm * (f - b))), 0.0)
     hinge = np.maximum(0.0, 1.0 - ypm * f)
@@ -278,6 +285,7 @@ def fit_binary_large(
     kernel: str,
     gamma: float,
     sample_weight: np.ndarray,
+    init: tuple[np.ndarray, float] | None = None,
 ) -> BinaryFit:
     """Large-n path. Linear: the same hinge-loss objective solved in the primal to a certified
     relative gap of 1e-3 (solvers.fit_linear_hinge; dense or sparse CSR X). Rbf: a landmark
@@ -287,7 +295,7 @@ def fit_binary_large(
 
     upper = C * sample_weight
     if kernel == "linear":
-        res = solvers.fit_linear_hinge(X, ypm, C, sample_weight=sample_weight)
+        res = solvers.fit_linear_hinge(X, ypm, C, sample_weight=sample_weight, init=init)
         f = np.asarray(X @ res.w, dtype=float).ravel() + res.b
         return BinaryFit(
             alpha=np.asarray(res.alpha, dtype=float),
@@ -364,7 +372,10 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
         y: np.ndarray,
         sample_weight: np.ndarray | None = None,
         report: Reporter | None = None,
+        init: dict[int, tuple[np.ndarray, float]] | None = None,
     ) -> SoftMarginClassifier:
+        """Fit one problem per class; ``init`` maps a class position (the positive class's
+        index in ``classes_``) to a (w, b) starting point for the primal linear solver."""
         report = report or Reporter()
         if self.kernel not in KERNELS:
             raise SettingsError(f"kernel {self.kernel!r} is not one of {', '.join(KERNELS)}")
@@ -402,6 +413,7 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
                     degree=self.degree,
                     sample_weight=weight,
                     solver=self.solver,
+                    init=None if init is None else init.get(int(cls)),
                 )
             )
         report(1.0, "fitted")

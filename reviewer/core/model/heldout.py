@@ -6,6 +6,7 @@ training; a model that never saw the row has no such blind spot.
 
 from __future__ import annotations
 
+import threading
 import warnings
 from collections.abc import Callable
 from typing import Any
@@ -14,10 +15,13 @@ import numpy as np
 from sklearn.base import BaseEstimator, clone
 from sklearn.model_selection import StratifiedKFold
 
+from reviewer.core.model.parallel import run_tasks
 from reviewer.core.progress import Reporter
 
 FoldFeatures = Callable[[np.ndarray, np.ndarray], tuple[Any, Any]]
 """(train, test) row positions -> (train matrix, test matrix), built from the train rows."""
+WarmStart = dict[int, tuple[np.ndarray, float]]
+"""Class index -> (w, b) of the full fit's problem for that class (its starting point)."""
 
 
 def effective_folds(y_idx: np.ndarray, folds: int) -> tuple[int, list[str]]:
@@ -51,6 +55,11 @@ def heldout_decision(
     seed: int,
     report: Reporter | None = None,
     fold_features: FoldFeatures | None = None,
+    *,
+    jobs: int | None = 1,
+    cluster: str | None = None,
+    warm_start: WarmStart | None = None,
+    predicted_seconds: float | None = None,
 ) -> tuple[np.ndarray, list[str]]:
     """(n, K) out-of-fold decision values; NaN for a class absent from a fold's training rows.
 
@@ -58,6 +67,12 @@ def heldout_decision(
     the fold's (train, test) matrices from positions into X's rows, so features whose
     statistics come from the data (a text column's vocabulary and idf) are learned from the
     fold's training rows alone; without it the fold uses rows of X.
+
+    The folds are independent fits: ``jobs`` runs them on that many threads (``None``: every
+    usable core), ``cluster`` on a Dask scheduler's workers (see parallel.run_tasks); the
+    values are the same whichever. ``warm_start`` maps a class index to the (w, b) of the
+    full fit's problem for that class, the starting point of a fold's primal solve.
+    ``predicted_seconds`` (of all folds, serial) keeps a tiny problem on one thread.
 
     The loop is ours rather than cross_val_predict's so a long fit reports progress per fold,
     honours a cancel between folds, and leaves NaN (not an error) for a class that a fold's
@@ -71,25 +86,62 @@ def heldout_decision(
         # We already warned in our own words about classes smaller than the fold count.
         warnings.simplefilter("ignore", UserWarning)
         splits = list(splitter.split(np.zeros(len(y_idx)), y_idx))
-    for i, (train, test) in enumerate(splits):
-        sub = report.slice(i / k, (i + 1) / k)
-        sub(0.0, f"held-out fold {i + 1} of {k}")
-        present = np.unique(y_idx[train])
-        if len(present) < 2:
-            continue
-        if fold_features is None:
-            X_train, X_test = X[train], X[test]
-        else:
-            X_train, X_test = fold_features(train, test)
-        model = clone(estimator)
-        # Fit on class indices so a missing class maps back to the right column.
-        model.fit(X_train, y_idx[train], report=sub)
-        F = model.decision_matrix(X_test)
-        cols = model.classes_.astype(int)
-        block = np.full((len(test), n_classes), np.nan)
-        if len(cols) == 2 and n_classes > 2:
-            # A two-class fold model gives (-f, f); halve so own minus rival is f, as with K = 2.
-            F = F / 2.0
-        block[:, cols] = F
-        out[test] = block
+    report(0.0, f"held-out fold 1 of {k}")
+    blocks = run_tasks(
+        fold_block,
+        # The user's cancel reaches fits on this machine between class problems; an Event
+        # cannot travel to a cluster, whose folds are cancelled between folds only.
+        (
+            X,
+            y_idx,
+            n_classes,
+            estimator,
+            fold_features,
+            warm_start,
+            report.cancel if cluster is None else None,
+        ),
+        [(train, test) for train, test in splits],
+        jobs=jobs,
+        cluster=cluster,
+        predicted_seconds=predicted_seconds,
+        report=report,
+        message=lambda done, total: f"held-out folds: {done} of {total} done",
+    )
+    for (_train, test), block in zip(splits, blocks, strict=True):
+        if block is not None:
+            out[test] = block
     return out, notes
+
+
+def fold_block(
+    X: Any,
+    y_idx: np.ndarray,
+    n_classes: int,
+    estimator: BaseEstimator,
+    fold_features: FoldFeatures | None,
+    warm_start: WarmStart | None,
+    cancel: threading.Event | None,
+    train: np.ndarray,
+    test: np.ndarray,
+) -> np.ndarray | None:
+    """One fold: fit on ``train``, the (len(test), K) decision block of ``test`` (None when
+    the fold's training rows hold a single class)."""
+    present = np.unique(y_idx[train])
+    if len(present) < 2:
+        return None
+    if fold_features is None:
+        X_train, X_test = X[train], X[test]
+    else:
+        X_train, X_test = fold_features(train, test)
+    model = clone(estimator)
+    # Fit on class indices so a missing class maps back to the right column.
+    init = warm_start if len(present) == n_classes else None
+    model.fit(X_train, y_idx[train], report=Reporter(None, cancel), init=init)
+    F = model.decision_matrix(X_test)
+    cols = model.classes_.astype(int)
+    block = np.full((len(test), n_classes), np.nan)
+    if len(cols) == 2 and n_classes > 2:
+        # A two-class fold model gives (-f, f); halve so own minus rival is f, as with K = 2.
+        F = F / 2.0
+    block[:, cols] = F
+    return block

@@ -126,11 +126,15 @@ def probe_labels(
     seed: int = 0,
     progress: ProgressFn | None = None,
     cancel=None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> ProbeResult:
     """Flip ``rate`` of the labelled rows, fit as scan would, and score where the flips rank."""
     labels = np.asarray(labels, dtype=object)
     planted, rows = plant_flips(labels, rate, seed)
-    fit = fit_margins(X, planted, settings, progress=progress, cancel=cancel)
+    fit = fit_margins(
+        X, planted, settings, progress=progress, cancel=cancel, jobs=jobs, cluster=cluster
+    )
     rank = fit.rows["rank"].to_numpy()
     ranked = rank > 0  # rows with a score (labelled rows)
     n_ranked = int(ranked.sum())
@@ -188,6 +192,8 @@ def probe_table(
     treat_as_classes: bool = False,
     progress: ProgressFn | None = None,
     cancel=None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> ProbeResult:
     """The probe on a loaded table: same roles and features as scan; the file is not changed."""
     report = Reporter(progress, cancel)
@@ -210,6 +216,8 @@ def probe_table(
         seed=seed,
         progress=report.slice(0.05, 1.0),
         cancel=cancel,
+        jobs=jobs,
+        cluster=cluster,
     )
     result.flipped_ids = data.ids[result.flipped_rows]
     return result

@@ -50,6 +50,8 @@ def scan_table(
     treat_as_classes: bool = False,
     progress: ProgressFn | None = None,
     cancel=None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> ScanOutcome:
     report = Reporter(progress, cancel)
     settings = (settings or FitSettings()).validate()
@@ -62,7 +64,15 @@ def scan_table(
         check_label=not treat_as_classes,
     )
     roles, labels, ids = data.roles, data.labels, data.ids
-    fit = fit_margins(data.X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
+    fit = fit_margins(
+        data.X,
+        labels,
+        settings,
+        progress=report.slice(0.05, 1.0),
+        cancel=cancel,
+        jobs=jobs,
+        cluster=cluster,
+    )
     warning = formula_warning(labels, "labels in the data")
     if warning:
         fit.summary.notes.append(warning)

@@ -6,11 +6,13 @@ The grid is small on purpose so ``auto`` stays quick and its work is bounded
 * linear: C in {0.01, 0.1, 1}
 * rbf:    C in {0.1, 1, 10, 100} x gamma in {1/4, 1, 4} times the 'scale' gamma
 
-The search is scikit-learn's GridSearchCV over stratified folds, scored by balanced
-accuracy, with ``one_standard_error_index`` as its refit rule: per kernel the simplest
-candidate within one standard error of that kernel's best, and a flexible kernel only when
-it is clearly better than linear. On planted-flip benchmarks this beat "highest score
-wins", which picks a large C or a flexible kernel that bends around wrong labels
+The search scores every candidate as scikit-learn's GridSearchCV would over stratified folds
+(balanced accuracy; tests/core/model/test_tuning.py checks it against GridSearchCV), but one
+task per (gamma, fold) fits all of its Cs, sharing the fold's kernel matrix and warm starts,
+on ``jobs`` threads or a Dask cluster. The choice uses ``one_standard_error_index``: per
+kernel the simplest candidate within one standard error of that kernel's best, and a
+flexible kernel only when it is clearly better than linear. On planted-flip benchmarks this
+beat "highest score wins", which picks a large C or a flexible kernel that bends around wrong labels
 (tests/benchmarks/results/detection.md, real_tables.md).
 
 On sparse features (TF-IDF text) ``auto`` tries the linear kernel only: it is the usual
@@ -25,13 +27,18 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
 from sklearn.metrics import accuracy_score, balanced_accuracy_score
-from sklearn.model_selection import GridSearchCV, StratifiedKFold, train_test_split
+from sklearn.model_selection import StratifiedKFold, train_test_split
+from sklearn.svm import SVC
+from sklearn.utils.class_weight import compute_sample_weight
 
+from reviewer.core.model import engine
 from reviewer.core.model.engine import SoftMarginClassifier, margins_from_decision, resolve_gamma
+from reviewer.core.model.parallel import run_tasks
 from reviewer.core.progress import Reporter
 
 LINEAR_CS = (0.01, 0.1, 1.0)
@@ -187,16 +194,18 @@ def choose_settings(
     kernels: tuple[str, ...] = ("linear", "rbf"),
     rbf_cs: tuple[float, ...] = RBF_CS,
     report: Reporter | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> tuple[Candidate, list[Candidate]]:
     """The chosen candidate of the documented grid, and every candidate's scores.
 
     ``rbf_cs`` narrows the rbf part of the grid (fitting leaves out C values whose scan of
     the whole table is predicted to take longer than engine.SLOW_SCAN_SECONDS).
 
-    Runs scikit-learn's GridSearchCV over stratified folds of a stratified sample of at most
-    TUNE_ROWS rows, with ``one_standard_error_index`` as its refit rule (refit itself is
-    skipped: the review fit that follows uses all rows). Sparse X (text) tries the linear
-    kernel only (``auto_kernels``).
+    Scores as scikit-learn's GridSearchCV over stratified folds of a stratified sample of
+    at most TUNE_ROWS rows, with ``one_standard_error_index`` as its refit rule (no refit:
+    the review fit that follows uses all rows). ``jobs`` and ``cluster`` say where the
+    fold sweeps run. Sparse X (text) tries the linear kernel only (``auto_kernels``).
     """
     report = report or Reporter()
     kernels, _note = auto_kernels(X, kernels)
@@ -209,46 +218,58 @@ def choose_settings(
         fallback = Candidate("linear", 1.0, None, None, float("nan"), float("nan"), 0, 0)
         return fallback, []
     base_gamma = resolve_gamma("scale", Xs)
-    grid: list[dict] = []
+    # (kernel, Cs, gammas) blocks in GridSearchCV's ParameterGrid order: C outer, gamma inner.
+    blocks: list[tuple[str, tuple[float, ...], tuple[float, ...]]] = []
     if "linear" in kernels:
         linear_cs = TEXT_LINEAR_CS if sp.issparse(X) else LINEAR_CS
-        grid.append({"kernel": ["linear"], "C": list(linear_cs)})
+        blocks.append(("linear", tuple(linear_cs), (base_gamma,)))
     if "rbf" in kernels and rbf_cs:
-        grid.append(
-            {
-                "kernel": ["rbf"],
-                "C": list(rbf_cs),
-                "gamma": [base_gamma * g for g in RBF_GAMMA_FACTORS],
-            }
+        blocks.append(
+            (
+                "rbf",
+                tuple(float(c) for c in rbf_cs),
+                tuple(base_gamma * g for g in RBF_GAMMA_FACTORS),
+            )
         )
-    total = folds * sum(len(g["C"]) * len(g.get("gamma", [None])) for g in grid)
-    done = [0]
-
-    def balanced(estimator, X_test, y_test) -> float:
-        # Scorer hook: progress after every fold fit, and the user's cancel between fits.
-        report.check()
-        done[0] += 1
-        report(min(done[0] / total, 1.0), f"choosing settings ({done[0]} of {total} fits)")
-        return balanced_accuracy_score(y_test, estimator.predict(X_test))
-
-    def plain(estimator, X_test, y_test) -> float:
-        return accuracy_score(y_test, estimator.predict(X_test))
-
-    search = GridSearchCV(
-        SoftMarginClassifier(class_weight=class_weight),
-        grid,
-        scoring={"balanced_accuracy": balanced, "accuracy": plain},
-        cv=StratifiedKFold(n_splits=folds, shuffle=True, random_state=seed),
-        refit=False,
-        error_score="raise",
-    )
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UserWarning)
-        search.fit(Xs, ys)
-    res = search.cv_results_
-    for p in res["params"]:
-        if p["kernel"] != "linear":
-            p["_f"] = p["gamma"] / base_gamma
+    total = sum(len(g) for _, _, g in blocks) * folds
+    params: list[dict] = []
+    splits: list[list[FoldScores]] = []
+    done = 0
+    for kernel, cs, gammas in blocks:
+        share = len(gammas) * folds / total
+        scores = _grid_scores(
+            Xs,
+            ys,
+            kernel=kernel,
+            Cs=cs,
+            gammas=gammas,
+            degree=3,
+            class_weight=class_weight,
+            folds=folds,
+            seed=seed,
+            report=report.slice(done / total, done / total + share),
+            jobs=jobs,
+            cluster=cluster,
+            message=lambda d, t: f"choosing settings ({d} of {t} fold sweeps)",
+        )
+        done += len(gammas) * folds
+        for ci, c in enumerate(cs):
+            for gi, g in enumerate(gammas):
+                p = {"C": c, "kernel": kernel}
+                if kernel != "linear":
+                    p.update(gamma=g, _f=g / base_gamma)
+                params.append(p)
+                splits.append(scores[gi][ci])
+    bal = np.array([[f[1] for f in fs] for fs in splits])
+    acc = np.array([[f[0] for f in fs] for fs in splits])
+    res: dict = {
+        "params": params,
+        # GridSearchCV's cv_results_ keys and statistics (population std over the splits).
+        "mean_test_balanced_accuracy": bal.mean(axis=1),
+        "std_test_balanced_accuracy": bal.std(axis=1),
+        "mean_test_accuracy": acc.mean(axis=1),
+        **{f"split{i}_test_balanced_accuracy": bal[:, i] for i in range(folds)},
+    }
     results = [
         Candidate(
             kernel=p["kernel"],
@@ -261,11 +282,148 @@ def choose_settings(
             n_wrong_side=float("nan"),
             balanced_accuracy_se=float(res["std_test_balanced_accuracy"][i] / np.sqrt(folds)),
         )
-        for i, p in enumerate(res["params"])
+        for i, p in enumerate(params)
     ]
     best = results[one_standard_error_index(res)]
     report(1.0, "settings chosen")
     return best, results
+
+
+FoldScores = tuple[float, float, int, int]
+"""(accuracy, balanced accuracy, bound support count, wrong_side count) of one fold's fit."""
+
+
+def _gram(A: Any, B: Any, kernel: str, gamma: float, degree: int) -> np.ndarray:
+    """Kernel matrix k(A_i, B_j) as engine's LIBSVM kernels define it, dense float64."""
+    G = A @ B.T
+    G = np.asarray(G.toarray() if hasattr(G, "toarray") else G, dtype=np.float64)
+    if kernel == "linear":
+        return G
+    if kernel == "poly":
+        return (gamma * G + engine.POLY_COEF0) ** degree
+    a_sq = np.asarray(A.multiply(A).sum(axis=1)).ravel() if hasattr(A, "multiply") else None
+    if a_sq is None:
+        a_sq = np.einsum("ij,ij->i", A, A)
+    b_sq = np.asarray(B.multiply(B).sum(axis=1)).ravel() if hasattr(B, "multiply") else None
+    if b_sq is None:
+        b_sq = np.einsum("ij,ij->i", B, B)
+    G *= -2.0
+    G += a_sq[:, None]
+    G += b_sq[None, :]
+    np.maximum(G, 0.0, out=G)
+    G *= -gamma
+    return np.exp(G, out=G)
+
+
+def _exact_on_gram(
+    K: np.ndarray, K_test: np.ndarray, ypm: np.ndarray, C: float, weight: np.ndarray | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """engine.fit_binary's exact LIBSVM solve on a precomputed kernel matrix:
+    (training decision, test decision, alpha, upper)."""
+    n = len(ypm)
+    svc = SVC(
+        kernel="precomputed",
+        C=C,
+        tol=1e-4,
+        cache_size=engine.KERNEL_CACHE_MB,
+        max_iter=engine.iteration_cap(n),
+    )
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        svc.fit(K, ypm, sample_weight=weight)
+    beta = np.zeros(n)  # alpha_i y_i, zero off the support
+    beta[svc.support_] = svc.dual_coef_[0]
+    b = float(svc.intercept_[0])
+    upper = C * (np.ones(n) if weight is None else weight)
+    return K @ beta + b, K_test @ beta + b, np.abs(beta), upper
+
+
+def curve_fold(
+    X: Any,
+    y_idx: np.ndarray,
+    kernel: str,
+    gamma: float,
+    degree: int,
+    class_weight: str | None,
+    Cs: tuple[float, ...],
+    cancel: Any,
+    train: np.ndarray,
+    test: np.ndarray,
+) -> list[FoldScores]:
+    """One fold's scores for every C, as ``cross_validate`` computes them for one C.
+
+    The fits of one fold share their work: where an rbf or poly problem is solved exactly
+    (LIBSVM), one kernel matrix of the fold serves every C and every class; the primal linear
+    solver starts each C from the previous C's (w, b).
+    """
+    X_train, X_test = X[train], X[test]
+    y_train, y_test = y_idx[train], y_idx[test]
+    # As SoftMarginClassifier.fit(X, y.astype(str)): classes sorted as strings.
+    classes, yi = np.unique(y_train.astype(str), return_inverse=True)
+    cols = classes.astype(int)
+    k = len(classes)
+    targets = [1] if k == 2 else list(range(k))
+    weight = compute_sample_weight(class_weight, yi) if class_weight is not None else None
+    n, d = X_train.shape
+    grams: tuple[np.ndarray, np.ndarray] | None = None
+    previous: dict[int, tuple[np.ndarray, float]] = {}
+    out: list[FoldScores] = []
+    for C in Cs:
+        if cancel is not None and cancel.is_set():
+            Reporter(None, cancel).check()
+        F_train = np.empty((n, len(targets)))
+        F_test = np.empty((len(test), len(targets)))
+        alphas, uppers = [], []
+        for j, cls in enumerate(targets):
+            ypm = np.where(yi == cls, 1.0, -1.0)
+            # A kernel matrix pays where a kernel value costs more than a look-up: rbf and
+            # poly (the demo's rbf curve: 0.73 x the time of one fit per C). For a linear
+            # kernel on few columns LIBSVM's own dot products were as quick as the look-ups
+            # and building the matrix cost more (tests/benchmarks/results/fold_speed.md).
+            if kernel != "linear" and engine.choose_solver(n, d, kernel, C) == "exact":
+                if grams is None:
+                    grams = (
+                        _gram(X_train, X_train, kernel, gamma, degree),
+                        _gram(X_test, X_train, kernel, gamma, degree),
+                    )
+                f, f_test, alpha, upper = _exact_on_gram(grams[0], grams[1], ypm, C, weight)
+            else:
+                fit = engine.fit_binary(
+                    X_train,
+                    ypm,
+                    C,
+                    kernel=kernel,
+                    gamma=gamma,
+                    degree=degree,
+                    sample_weight=weight,
+                    init=previous.get(cls),
+                )
+                if fit.w is not None and fit._estimator is None:
+                    previous[cls] = (fit.w, fit.intercept)
+                f, f_test = fit.decision, fit.decision_function(X_test)
+                alpha, upper = fit.alpha, fit.upper
+            F_train[:, j], F_test[:, j] = f, f_test
+            alphas.append(alpha)
+            uppers.append(upper)
+        if k == 2:
+            F_train = np.column_stack([-F_train[:, 0], F_train[:, 0]])
+            F_test = np.column_stack([-F_test[:, 0], F_test[:, 0]])
+            row_alpha, row_upper = alphas[0], uppers[0]
+        else:
+            rows = np.arange(n)
+            row_alpha = np.column_stack(alphas)[rows, yi]
+            row_upper = np.column_stack(uppers)[rows, yi]
+        pred = cols[np.argmax(F_test, axis=1)]
+        m = margins_from_decision(F_train, yi)
+        out.append(
+            (
+                float(accuracy_score(y_test, pred)),
+                float(balanced_accuracy_score(y_test, pred)),
+                int(np.sum(row_alpha >= row_upper * (1 - 1e-6))),
+                int(np.sum(m < 0)),
+            )
+        )
+    return out
 
 
 def c_curve(
@@ -280,40 +438,108 @@ def c_curve(
     folds: int = 5,
     seed: int = 0,
     report: Reporter | None = None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> list[Candidate]:
     """Cross-validated scores across a log grid of C (and of gamma for rbf/poly).
 
-    On sparse X the rbf and poly curves use the exact LIBSVM solver (the approximate rbf path
-    needs dense rows); the curve's rows are a sample of at most CURVE_ROWS, within its cache.
+    The same scores as ``cross_validate`` for each (C, gamma), computed one task per
+    (gamma, fold) so a fold's fits share a kernel matrix and warm starts (``curve_fold``);
+    the tasks run on ``jobs`` threads or a ``cluster``. On sparse X the rbf and poly curves
+    are exact solves on the fold's kernel matrix (the approximate rbf path needs dense rows).
     """
     report = report or Reporter()
-    solver = "exact" if sp.issparse(X) and kernel != "linear" else "auto"
     gamma_list = gammas or (resolve_gamma("scale", X),)
     if kernel == "linear":
         gamma_list = (resolve_gamma("scale", X),)
+    scores = _grid_scores(
+        X,
+        y_idx,
+        kernel=kernel,
+        Cs=tuple(float(c) for c in Cs),
+        gammas=tuple(float(g) for g in gamma_list),
+        degree=degree,
+        class_weight=class_weight,
+        folds=folds,
+        seed=seed,
+        report=report,
+        jobs=jobs,
+        cluster=cluster,
+        message=lambda done, total: f"C curve: {kernel}, {done} of {total} fold sweeps",
+    )
     out: list[Candidate] = []
-    total = len(Cs) * len(gamma_list)
     for gi, g in enumerate(gamma_list):
         for ci, c in enumerate(Cs):
-            step = gi * len(Cs) + ci
-            sub = report.slice(step / total, (step + 1) / total)
-            sub(0.0, f"C curve: {kernel}, C={c:g}")
-            out.append(
-                cross_validate(
-                    X,
-                    y_idx,
-                    kernel=kernel,
-                    C=c,
-                    gamma=g,
-                    degree=degree,
-                    class_weight=class_weight,
-                    folds=folds,
-                    seed=seed,
-                    report=sub,
-                    solver=solver,
-                )
-            )
+            out.append(_candidate(kernel, float(c), float(g), scores[gi][ci]))
     return out
+
+
+def _grid_scores(
+    X: Any,
+    y_idx: np.ndarray,
+    *,
+    kernel: str,
+    Cs: tuple[float, ...],
+    gammas: tuple[float, ...],
+    degree: int,
+    class_weight: str | None,
+    folds: int,
+    seed: int,
+    report: Reporter,
+    jobs: int | None,
+    cluster: str | None,
+    message: Any = None,
+) -> list[list[list[FoldScores]]]:
+    """scores[gamma][C][fold] over stratified folds, one task per (gamma, fold)."""
+    splitter = StratifiedKFold(n_splits=folds, shuffle=True, random_state=seed)
+    splits = list(splitter.split(np.zeros(len(y_idx)), y_idx))
+    tasks = [(g, train, test) for g in gammas for train, test in splits]
+    results = run_tasks(
+        _curve_task,
+        (X, y_idx, kernel, degree, class_weight, Cs, report.cancel if cluster is None else None),
+        tasks,
+        jobs=jobs,
+        cluster=cluster,
+        report=report,
+        message=message,
+    )
+    k = len(splits)
+    return [
+        [[results[gi * k + f][ci] for f in range(k)] for ci in range(len(Cs))]
+        for gi in range(len(gammas))
+    ]
+
+
+def _curve_task(
+    X: Any,
+    y_idx: np.ndarray,
+    kernel: str,
+    degree: int,
+    class_weight: str | None,
+    Cs: tuple[float, ...],
+    cancel: Any,
+    gamma: float,
+    train: np.ndarray,
+    test: np.ndarray,
+) -> list[FoldScores]:
+    return curve_fold(X, y_idx, kernel, gamma, degree, class_weight, Cs, cancel, train, test)
+
+
+def _candidate(kernel: str, C: float, gamma: float, folds: list[FoldScores]) -> Candidate:
+    acc, bal, bound, wrong = (np.array(v, dtype=float) for v in zip(*folds, strict=True))
+    return Candidate(
+        kernel=kernel,
+        C=float(C),
+        gamma=float(gamma) if kernel != "linear" else None,
+        gamma_factor=None,
+        accuracy=float(np.mean(acc)),
+        balanced_accuracy=float(np.mean(bal)),
+        n_bound=float(np.mean(bound)),
+        n_wrong_side=float(np.mean(wrong)),
+        balanced_accuracy_se=float(np.std(bal, ddof=1) / np.sqrt(len(bal)))
+        if len(bal) > 1
+        else 0.0,
+    )
 
 
 # The curve cross-validates len(Cs) x len(gammas) x folds fits; beyond this many rows it runs
@@ -351,6 +577,8 @@ def c_curve_for_labels(
     max_rows: int = CURVE_ROWS,
     progress=None,
     cancel=None,
+    jobs: int | None = None,
+    cluster: str | None = None,
 ) -> dict:
     """The C curve over the current labels and exclusions, for a background task.
 
@@ -382,6 +610,8 @@ def c_curve_for_labels(
         folds=folds,
         seed=seed,
         report=Reporter(progress, cancel),
+        jobs=jobs,
+        cluster=cluster,
     )
     return {
         "kernel": kernel,

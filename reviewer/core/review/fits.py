@@ -45,6 +45,9 @@ class FitJob:
     baseline: bool
     edits_settings: FitSettings | None = None
     """The baseline's resolved settings, for the edits-alone fit (None for a baseline job)."""
+    jobs: int | None = None
+    cluster: str | None = None
+    """Where the held-out folds run (the session's jobs and cluster); never changes results."""
 
 
 @dataclass
@@ -66,7 +69,17 @@ def prepare_fit(
     edits = None
     if not baseline and session.baseline is not None:
         edits = session.baseline.settings.as_fixed()
-    return FitJob(session.X, labels, excluded, settings, session.last_seq, baseline, edits)
+    return FitJob(
+        session.X,
+        labels,
+        excluded,
+        settings,
+        session.last_seq,
+        baseline,
+        edits,
+        jobs=getattr(session, "jobs", None),
+        cluster=getattr(session, "cluster", None),
+    )
 
 
 def compute_fit(
@@ -85,6 +98,8 @@ def compute_fit(
         excluded=job.excluded,
         progress=report.slice(0.0, main_end),
         cancel=cancel,
+        jobs=job.jobs,
+        cluster=job.cluster,
     )
     edits_only = None
     if job.edits_settings is not None and not result.settings.same_fit_as(job.edits_settings):
@@ -95,6 +110,8 @@ def compute_fit(
             excluded=job.excluded,
             progress=report.slice(main_end, 1.0),
             cancel=cancel,
+            jobs=job.jobs,
+            cluster=job.cluster,
         )
     report(1.0, "fit finished")
     return FitPair(result, edits_only)

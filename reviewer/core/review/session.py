@@ -77,6 +77,10 @@ class ReviewSession:
         self.file = file
         self.reviewer = reviewer
         self.settings = settings
+        # Where fits run (held-out folds): cores on this machine, or a Dask scheduler
+        # address. Not saved with the session and not a setting: results do not depend on it.
+        self.jobs: int | None = None
+        self.cluster: str | None = None
         self.X = dataset.X
         self.feature_names = dataset.feature_names
         self.warnings = warnings

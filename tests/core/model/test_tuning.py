@@ -52,3 +52,36 @@ def test_the_c_curve_matches_cross_val_score_on_the_same_folds() -> None:
     for point, C in zip(curve, Cs, strict=True):
         ref = cross_val_score(SVC(kernel="linear", C=C), X, y, cv=folds, scoring="accuracy")
         assert point.accuracy == pytest.approx(np.mean(ref), abs=0.004)
+
+
+def test_auto_scores_every_candidate_as_grid_search_cv_does() -> None:
+    # Reference: scikit-learn's GridSearchCV with our estimator on the same stratified folds,
+    # scored by balanced accuracy; auto computes the same scores fold by fold, its own way.
+    from sklearn.metrics import balanced_accuracy_score, make_scorer
+    from sklearn.model_selection import GridSearchCV
+
+    from reviewer.core.model.engine import SoftMarginClassifier, resolve_gamma
+    from reviewer.core.model.tuning import LINEAR_CS, RBF_GAMMA_FACTORS, choose_settings
+
+    rng = np.random.default_rng(5)
+    y = rng.integers(0, 3, 240)
+    X = rng.normal(size=(240, 4)) + np.eye(3, 4)[y] * 1.5
+    rbf_cs = (0.1, 10.0)
+    best, tried = choose_settings(X, y, seed=2, rbf_cs=rbf_cs, jobs=2)
+    base = resolve_gamma("scale", X)
+    grid = [
+        {"kernel": ["linear"], "C": list(LINEAR_CS)},
+        {"kernel": ["rbf"], "C": list(rbf_cs), "gamma": [base * f for f in RBF_GAMMA_FACTORS]},
+    ]
+    search = GridSearchCV(
+        SoftMarginClassifier(),
+        grid,
+        scoring=make_scorer(balanced_accuracy_score),
+        cv=StratifiedKFold(n_splits=3, shuffle=True, random_state=2),
+    ).fit(X, y)
+    ref = search.cv_results_
+    assert len(tried) == len(ref["params"])
+    for cand, params, mean in zip(tried, ref["params"], ref["mean_test_score"], strict=True):
+        assert (cand.kernel, cand.C) == (params["kernel"], params["C"])
+        assert cand.balanced_accuracy == pytest.approx(mean, abs=1e-9)
+    assert best in tried
