@@ -227,9 +227,12 @@ def fit_binary(
     alpha[svc.support_] = np.abs(dual_coef[0])
     # SVC orders classes as [-1, +1]; its decision is positive for +1.
     b = float(svc.intercept_[0])
+    w = None
     if kernel == "linear":
+        coef = svc.coef_.toarray() if sp.issparse(svc.coef_) else svc.coef_
+        w = np.asarray(coef[0], dtype=float).copy()
         # x.w + b is the same value as LIBSVM's sum over support vectors, in one pass.
-        f = np.asarray(X @ np.asarray(svc.coef_[0], dtype=float), dtype=float).ravel() + b
+        f = np.asarray(X @ w, dtype=float).ravel() + b
     else:
         f = np.asarray(svc.decision_function(X), dtype=float)
     # ||w||^2 = sum_i alpha_i y_i (f_i - b), exact when sum alpha_i y_i = 0; needs no kernel matrix.
@@ -237,10 +240,6 @@ def fit_binary(
     hinge = np.maximum(0.0, 1.0 - ypm * f)
     primal = 0.5 * w_sq + C * float(np.sum(s * hinge))
     dual = float(np.sum(alpha)) - 0.5 * w_sq
-    w = None
-    if kernel == "linear":
-        coef = svc.coef_.toarray() if sp.issparse(svc.coef_) else svc.coef_
-        w = np.asarray(coef[0], dtype=float).copy()
     return BinaryFit(
         alpha=alpha,
         upper=C * s,

@@ -364,7 +364,8 @@ def curve_fold(
     k = len(classes)
     targets = [1] if k == 2 else list(range(k))
     weight = compute_sample_weight(class_weight, yi) if class_weight is not None else None
-    n, d = X_train.shape
+    n = X_train.shape[0]
+    d = engine.cost_features(X_train)
     grams: tuple[np.ndarray, np.ndarray] | None = None
     previous: dict[int, tuple[np.ndarray, float]] = {}
     out: list[FoldScores] = []
@@ -380,7 +381,9 @@ def curve_fold(
             # poly (the demo's rbf curve: 0.73 x the time of one fit per C). For a linear
             # kernel on few columns LIBSVM's own dot products were as quick as the look-ups
             # and building the matrix cost more (tests/benchmarks/results/fold_speed.md).
-            if kernel != "linear" and engine.choose_solver(n, d, kernel, C) == "exact":
+            # Sparse (text) rows have no approximate rbf path: they are always solved exactly.
+            exact = sp.issparse(X_train) or engine.choose_solver(n, d, kernel, C) == "exact"
+            if kernel != "linear" and exact:
                 if grams is None:
                     grams = (
                         _gram(X_train, X_train, kernel, gamma, degree),
