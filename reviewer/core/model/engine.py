@@ -389,7 +389,8 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
                 f"need at least two classes to fit; found {k} class "
                 f"({', '.join(map(str, self.classes_))})"
             )
-        self.gamma_ = resolve_gamma(self.gamma, X)
+        # A linear kernel has no gamma: skip the pass over X that 'scale' would take.
+        self.gamma_ = 1.0 if self.kernel == "linear" else resolve_gamma(self.gamma, X)
         weight = None
         if self.class_weight is not None:
             weight = compute_sample_weight(self.class_weight, y_idx)

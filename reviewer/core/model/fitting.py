@@ -20,7 +20,7 @@ from reviewer.core.model.engine import (
     zones_from_slack,
 )
 from reviewer.core.model.heldout import FoldFeatures, heldout_decision
-from reviewer.core.model.tuning import RBF_CS, choose_settings
+from reviewer.core.model.tuning import RBF_CS, auto_kernels, choose_settings
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import DEFAULT_C, SUPPORTS, ZONES, FitSettings, FitSummary
 
@@ -109,17 +109,22 @@ def fit_margins(
     resolved = settings.to_dict()
     candidates: list[dict] = []
     Xf = X if len(fit_rows) == n else X[fit_rows]  # every row fitted: no copy
+    # Features as the solvers' cost counts them: d, or stored values per row when sparse.
+    cost_d = engine.cost_features(X)
     if settings.kernel == "auto":
+        kernels, narrowed = auto_kernels(X)
+        if narrowed:
+            notes.append(narrowed)
         # Bound auto's work: no rbf C whose scan of this table is predicted over the budget.
         rbf_cs = tuple(
             c
             for c in RBF_CS
             if engine.predicted_scan_seconds(
-                len(fit_rows), X.shape[1], len(classes), "rbf", c, int(settings.folds)
+                len(fit_rows), cost_d, len(classes), "rbf", c, int(settings.folds)
             )
             <= engine.SLOW_SCAN_SECONDS
         )
-        if len(rbf_cs) < len(RBF_CS):
+        if "rbf" in kernels and len(rbf_cs) < len(RBF_CS):
             left_out = ", ".join(f"{c:g}" for c in RBF_CS if c not in rbf_cs)
             notes.append(
                 f"auto left out rbf with C={left_out}: predicted over "
@@ -164,7 +169,7 @@ def fit_margins(
 
     folds = int(resolved["folds"])
     expected = engine.predicted_scan_seconds(
-        len(fit_rows), X.shape[1], len(classes), resolved["kernel"], float(resolved["C"]), folds
+        len(fit_rows), cost_d, len(classes), resolved["kernel"], float(resolved["C"]), folds
     )
     if expected > engine.SLOW_SCAN_SECONDS:
         slow = (
@@ -178,7 +183,8 @@ def fit_margins(
     model = make_model().fit(
         Xf, labels[fit_rows].astype(str), report=report.slice(main_start, fit_end)
     )
-    resolved["gamma_value"] = float(model.gamma_)
+    # A linear fit uses no gamma: none is reported.
+    resolved["gamma_value"] = None if resolved["kernel"] == "linear" else float(model.gamma_)
     stopped = [
         str(cls)
         for cls, p in zip(
@@ -219,7 +225,7 @@ def fit_margins(
     F_held = None
     if folds:
         fold_seconds = expected - engine.predicted_scan_seconds(
-            len(fit_rows), X.shape[1], len(classes), resolved["kernel"], float(resolved["C"]), 0
+            len(fit_rows), cost_d, len(classes), resolved["kernel"], float(resolved["C"]), 0
         )
         held_fit, fold_notes = heldout_decision(
             Xf,
