@@ -8,7 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from reviewer.core.data.dataset import prepare_dataset
+from reviewer.core.data.dataset import Vectors, prepare_dataset
 from reviewer.core.data.duplicates import conflicting_duplicates
 from reviewer.core.data.loading import LoadedTable
 from reviewer.core.data.roles import ColumnRoles
@@ -48,6 +48,7 @@ def scan_table(
     settings: FitSettings | None = None,
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
+    vectors: Vectors | None = None,
     progress: ProgressFn | None = None,
     cancel=None,
 ) -> ScanOutcome:
@@ -60,13 +61,21 @@ def scan_table(
         id_column=id_column,
         overrides=overrides,
         check_label=not treat_as_classes,
+        vectors=vectors,
     )
     roles, labels, ids = data.roles, data.labels, data.ids
-    fit = fit_margins(data.X, labels, settings, progress=report.slice(0.05, 1.0), cancel=cancel)
+    fit = fit_margins(
+        data.X,
+        labels,
+        settings,
+        progress=report.slice(0.05, 1.0),
+        cancel=cancel,
+        fold_features=data.fold_features,
+    )
     warning = formula_warning(labels, "labels in the data")
     if warning:
         fit.summary.notes.append(warning)
-    groups = conflicting_duplicates(loaded.frame, roles, labels)
+    groups = conflicting_duplicates(_hashable(loaded.frame, roles), roles, labels)
     if groups:
         shown = "; ".join(", ".join(str(ids[r]) for r in g[:4]) for g in groups[:3])
         fit.summary.notes.append(
@@ -74,6 +83,16 @@ def scan_table(
             f"(a classic sign of label noise), e.g. {shown}"
         )
     return ScanOutcome(scan_frame(fit, labels, ids), fit, roles, data.feature_names)
+
+
+def _hashable(frame: pd.DataFrame, roles: ColumnRoles) -> pd.DataFrame:
+    """Vector columns as tuples, so rows can be compared and hashed."""
+    if not roles.vector:
+        return frame
+    out = frame.copy(deep=False)
+    for col in roles.vector:
+        out[col] = [tuple(np.asarray(v).tolist()) for v in frame[col]]
+    return out
 
 
 def scan_frame(fit: FitResult, labels: np.ndarray, ids: np.ndarray) -> pd.DataFrame:
