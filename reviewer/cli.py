@@ -280,6 +280,7 @@ def _write_summary(args: argparse.Namespace, outcome: Any, seconds: float) -> No
         },
         "vectors": str(Path(args.vectors).resolve()) if args.vectors else None,
         "features": len(outcome.feature_names),
+        "feature_nonzeros": outcome.nonzeros,
         "notes": list(s.notes),
         "out": str(Path(args.out).resolve()) if args.out else None,
         "seconds": round(seconds, 3),

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import os
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -39,6 +39,7 @@ class Dataset:
     with the text vocabulary and idf learned from the train rows only."""
     vectors_path: Path | None = None  # the .npy vectors file, when one was given
     vectors_sha256: str | None = None
+    notes: list[str] = field(default_factory=list)  # what the reader should know
 
     @property
     def frame(self) -> pd.DataFrame:
@@ -115,6 +116,7 @@ def prepare_dataset(
         fold_features=built.fold_features,
         vectors_path=path,
         vectors_sha256=digest,
+        notes=built.notes,
     )
 
 

@@ -8,7 +8,7 @@ blocks (``text.py``). X is a dense float64 array without text, else a CSR matrix
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
@@ -24,7 +24,7 @@ from sklearn.preprocessing import (
 )
 
 from reviewer.core.data.roles import ColumnRoles
-from reviewer.core.data.text import TextCounts, read_text_columns
+from reviewer.core.data.text import TextCounts, long_cells_note, read_text_columns
 from reviewer.core.data.vectors import VECTORS_FILE_NAME, column_vectors, standardise
 from reviewer.core.errors import InputError
 
@@ -115,6 +115,7 @@ class Features:
     names: list[str]
     fold_features: TextFolds | None = None
     """None without a text column; else (train, test) -> matrices fitted on train rows."""
+    notes: list[str] = field(default_factory=list)
 
 
 class TextFolds:
@@ -183,7 +184,7 @@ def build_features(
             f"text column(s) {shown} give no word or character n-gram found in two or more "
             "rows, and there is no other feature"
         )
-    return Features(X, names, folds)
+    return Features(X, names, folds, long_cells_note(frame, roles.text))
 
 
 def feature_matrix(

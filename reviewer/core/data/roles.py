@@ -183,7 +183,10 @@ def infer_kind(values: pd.Series) -> tuple[str, str]:
         if text.str.contains(r"\s").mean() > 0.5:
             return "text", ""
         return "ignore", "identifier-like (every value distinct)"
-    if text.str.len().mean() > 40 and text.str.contains(r"\s").mean() > 0.5:
+    # Judged on the distinct values, so a column whose rows mostly repeat a marker (say
+    # "n/a") around real sentences still reads as text.
+    distinct = text.drop_duplicates()
+    if distinct.str.len().mean() > 40 and distinct.str.contains(r"\s").mean() > 0.5:
         return "text", ""
     if n_unique > MAX_CATEGORY_LEVELS:
         if text.str.contains(r"\s").mean() > 0.5:

@@ -36,6 +36,12 @@ MAX_CHAR_FEATURES = 100_000
 cap bounds the model's width; the rows' non-zeros, and so memory, depend mostly on the
 text's length). Chosen with tests/benchmarks/text_memory.py."""
 
+MAX_TEXT_CHARS = 100_000
+"""Only the first this-many characters of a cell become features. Tokenising costs about
+6 s per MB of text on a laptop core (character n-grams are most of it): 20 cells of 1 MB
+took 122 s and 0.95 GB for a 5-fold linear scan without this cap, about a tenth of that
+with it. The window still shows the whole cell."""
+
 ANALYZERS = (
     # (tag in feature names, analyzer, n-gram range, cap)
     ("w", "word", WORD_NGRAMS, MAX_WORD_FEATURES),
@@ -62,10 +68,27 @@ def tfidf_vectorizers() -> list[tuple[str, TfidfVectorizer]]:
     ]
 
 
-def documents(values: pd.Series) -> list[str]:
-    """A text column as the strings the vectorisers read: missing values become ""."""
+def documents(values: pd.Series, limit: int | None = MAX_TEXT_CHARS) -> list[str]:
+    """A text column as the strings the vectorisers read: missing values become "", and
+    each cell is cut to its first ``limit`` characters."""
     out = values.astype(object).where(values.notna(), "")
-    return [v if isinstance(v, str) else str(v) for v in out.tolist()]
+    docs = [v if isinstance(v, str) else str(v) for v in out.tolist()]
+    return docs if limit is None else [d[:limit] for d in docs]
+
+
+def long_cells_note(frame: pd.DataFrame, columns: list[str]) -> list[str]:
+    """A note per text column with cells longer than MAX_TEXT_CHARS."""
+    notes = []
+    for col in columns:
+        lengths = frame[col].astype(object).where(frame[col].notna(), "").astype(str).str.len()
+        n = int((lengths > MAX_TEXT_CHARS).sum())
+        if n:
+            notes.append(
+                f"text column {col!r}: {n:,} cell(s) longer than {MAX_TEXT_CHARS:,} characters "
+                f"(the longest {int(lengths.max()):,}); their features use the first "
+                f"{MAX_TEXT_CHARS:,}"
+            )
+    return notes
 
 
 @dataclass

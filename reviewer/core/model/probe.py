@@ -219,6 +219,7 @@ def probe_table(
         fold_features=data.fold_features,
     )
     result.flipped_ids = data.ids[result.flipped_rows]
+    result.notes.extend(data.notes)
     return result
 
 

@@ -38,6 +38,7 @@ class ScanOutcome:
     fit: FitResult
     roles: ColumnRoles
     feature_names: list[str]
+    nonzeros: int = 0  # stored values of the feature matrix (all of them when dense)
 
 
 def scan_table(
@@ -72,6 +73,7 @@ def scan_table(
         cancel=cancel,
         fold_features=data.fold_features,
     )
+    fit.summary.notes.extend(data.notes)
     warning = formula_warning(labels, "labels in the data")
     if warning:
         fit.summary.notes.append(warning)
@@ -82,7 +84,8 @@ def scan_table(
             f"{len(groups)} group(s) of rows with identical features but different labels "
             f"(a classic sign of label noise), e.g. {shown}"
         )
-    return ScanOutcome(scan_frame(fit, labels, ids), fit, roles, data.feature_names)
+    nonzeros = int(getattr(data.X, "nnz", data.X.size))
+    return ScanOutcome(scan_frame(fit, labels, ids), fit, roles, data.feature_names, nonzeros)
 
 
 def _hashable(frame: pd.DataFrame, roles: ColumnRoles) -> pd.DataFrame:

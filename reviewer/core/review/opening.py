@@ -228,6 +228,7 @@ def open_session(
             raise SourceChangedError(
                 f"vectors file {vectors_meta['path']} changed while the session was opening"
             )
+        warnings.extend(dataset.notes)
         session = cls(dataset, file, reviewer or default_reviewer(), settings, warnings)
     except BaseException:
         file.close()
