@@ -101,7 +101,9 @@ def prepare_dataset(
                 f"read; the workbook also has {', '.join(repr(s) for s in others)} "
                 "(choose one with --sheet)"
             )
-        roles = infer_roles(loaded.frame, label, id_column, overrides)
+        roles = infer_roles(
+            loaded.frame, label, id_column, overrides, require_features=vectors is None
+        )
     if check_label:
         check_label_column(loaded.frame[roles.label], roles.label)
     array, path, digest = read_vectors(vectors, len(loaded.frame))

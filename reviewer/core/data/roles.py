@@ -106,8 +106,12 @@ def infer_roles(
     label: str,
     id_column: str | None = None,
     overrides: Mapping[str, str] | None = None,
+    *,
+    require_features: bool = True,
 ) -> ColumnRoles:
     """Decide each column's role. ``overrides`` maps a column to one of KINDS.
+    ``require_features=False`` accepts a table with no feature column (its features come
+    from a vectors file).
 
     A column chosen as text that holds no text at all (every value missing or blank) is
     ignored with the reason "no text"; a table whose only feature is text is accepted."""
@@ -141,7 +145,7 @@ def infer_roles(
             roles.ignored[col] = reason
         else:
             getattr(roles, kind).append(col)
-    if not roles.features:
+    if not roles.features and require_features:
         reasons = "; ".join(f"{c}: {r}" for c, r in roles.ignored.items()) or "no other columns"
         raise InputError(f"no usable feature column besides the label ({reasons})")
     return roles
@@ -162,7 +166,7 @@ def infer_kind(values: pd.Series) -> tuple[str, str]:
         if _looks_like_vectors(present):
             return "vector", ""
         return "ignore", "a list or record per row that is not a list of numbers"
-    if s.dtype == object and not has_text(present):
+    if not pd.api.types.is_numeric_dtype(s.dtype) and not has_text(present):
         return "ignore", NO_TEXT
     n_unique = present.nunique()
     if n_unique <= 1:

@@ -143,6 +143,8 @@ class TextCounts:
         """TF-IDF of ``rows`` (all if None) over the vocabulary ``keep``: 1 + log count,
         times idf, each row scaled to unit length."""
         C = self.counts if rows is None else self.counts[rows]
+        if len(keep) == 0:
+            return sparse.csr_matrix((C.shape[0], 0), dtype=np.float64)
         X = C[:, keep].astype(np.float64)
         X.sort_indices()
         np.log(X.data, out=X.data)

@@ -165,7 +165,13 @@ def open_session(
             if roles is None or any(
                 c not in loaded.frame.columns for c in [roles.label, *roles.features]
             ):
-                roles = infer_roles(loaded.frame, label_col, id_col, overrides)
+                roles = infer_roles(
+                    loaded.frame,
+                    label_col,
+                    id_col,
+                    overrides,
+                    require_features=not meta.get("vectors"),
+                )
             settings = FitSettings.from_dict(meta.get("settings") or {})
             changed = meta.get("source_sha256") != src.sha256
             if changed and not (read_only or reattach):
@@ -200,7 +206,9 @@ def open_session(
             raise SessionError(f"no session file at {path} to open read-only")
         if label is None:
             raise InputError(f"{src.path}: choose the label column (--label)")
-        roles = infer_roles(loaded.frame, label, id_column, overrides)
+        roles = infer_roles(
+            loaded.frame, label, id_column, overrides, require_features=vectors is None
+        )
         settings = FitSettings()
         if vectors is not None:
             vectors_meta = _vectors_meta(vectors, len(loaded.frame))
