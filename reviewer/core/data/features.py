@@ -24,7 +24,7 @@ from sklearn.preprocessing import (
 )
 
 from reviewer.core.data.roles import ColumnRoles
-from reviewer.core.data.text import TextCounts, long_cells_note, read_text_columns
+from reviewer.core.data.text import TextCounts, long_cells_note, read_text_columns, row_chunks
 from reviewer.core.data.vectors import VECTORS_FILE_NAME, column_vectors, standardise
 from reviewer.core.errors import InputError
 
@@ -132,14 +132,50 @@ class TextFolds:
         """One matrix per entry of ``apply`` (row positions; None = every row) with the
         text vocabularies of ``train`` (None = every row)."""
         learned = [t.vocabulary(train) for t in self.texts]
-        out = []
-        for rows in apply:
-            dense = self.dense if rows is None else self.dense[rows]
-            parts = [sparse.csr_matrix(dense)] if dense.shape[1] else []
-            for t, (keep, idf) in zip(self.texts, learned, strict=True):
-                parts.append(t.tfidf(rows, keep, idf))
-            out.append(_hstack(parts, len(dense)))
-        return out
+        n = len(self.dense)
+        return [
+            self._assemble(np.arange(n) if rows is None else np.asarray(rows), learned)
+            for rows in apply
+        ]
+
+    def _chunk(self, rows: np.ndarray, learned: list) -> sparse.csr_matrix:
+        parts = [sparse.csr_matrix(self.dense[rows])] if self.dense.shape[1] else []
+        for t, (keep, idf) in zip(self.texts, learned, strict=True):
+            parts.append(t.tfidf(rows, keep, idf))
+        return _hstack(parts, len(rows))
+
+    def _assemble(self, rows: np.ndarray, learned: list) -> sparse.csr_matrix:
+        """The rows' matrix built a slice of rows at a time into arrays sized once, so the
+        peak is the finished matrix plus one slice (not the blocks and their copy)."""
+        chunks = row_chunks(rows)
+        if len(chunks) == 1:
+            return self._chunk(rows, learned)
+        width = self.dense.shape[1] + sum(len(k) for k, _ in learned)
+        # First pass: non-zeros per row (cheap: no TF-IDF arithmetic), to size the arrays.
+        row_nnz = np.zeros(len(rows), dtype=np.int64)
+        at = 0
+        for chunk in chunks:
+            counted = np.count_nonzero(self.dense[chunk], axis=1).astype(np.int64)
+            for t, (keep, _) in zip(self.texts, learned, strict=True):
+                counted += t.kept_per_row(chunk, keep)
+            row_nnz[at : at + len(chunk)] = counted
+            at += len(chunk)
+        indptr = np.zeros(len(rows) + 1, dtype=np.int64)
+        np.cumsum(row_nnz, out=indptr[1:])
+        total = int(indptr[-1])
+        index_type = np.int32 if max(total, width) < np.iinfo(np.int32).max else np.int64
+        data = np.empty(total, dtype=np.float64)
+        indices = np.empty(total, dtype=index_type)
+        at = 0
+        for chunk in chunks:
+            block = self._chunk(chunk, learned)
+            start, stop = indptr[at], indptr[at + len(chunk)]
+            data[start:stop] = block.data
+            indices[start:stop] = block.indices
+            at += len(chunk)
+        return sparse.csr_matrix(
+            (data, indices, indptr.astype(index_type)), shape=(len(rows), width)
+        )
 
     def names(self, dense_names: list[str]) -> list[str]:
         names = list(dense_names)

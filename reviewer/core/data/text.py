@@ -123,18 +123,22 @@ class TextCounts:
         as ``TfidfVectorizer.fit`` on those rows: terms in at least ``min_df`` of them, the
         ``max_features`` largest total counts (scikit-learn's own ordering and ties), idf
         ln((1 + n) / (1 + df)) + 1."""
-        C = self.counts if train is None else self.counts[train]
-        n_terms = C.shape[1]
-        df = np.bincount(C.indices, minlength=n_terms)
+        n_terms = self.counts.shape[1]
+        rows = np.arange(self.counts.shape[0]) if train is None else np.asarray(train)
+        df = np.zeros(n_terms, dtype=np.int64)
+        tfs = np.zeros(n_terms, dtype=np.float64)
+        for chunk in row_chunks(rows):  # in slices, so no copy of the whole count matrix
+            C = self.counts[chunk]
+            df += np.bincount(C.indices, minlength=n_terms)
+            tfs += np.bincount(C.indices, weights=C.data, minlength=n_terms)
         mask = df >= self.min_df
         if mask.sum() > self.max_features:
-            tfs = np.bincount(C.indices, weights=C.data, minlength=n_terms)
             order = (-tfs[mask]).argsort()[: self.max_features]
             limited = np.zeros(n_terms, dtype=bool)
             limited[np.flatnonzero(mask)[order]] = True
             mask = limited
         keep = np.flatnonzero(mask)
-        idf = np.log((C.shape[0] + 1) / (df[keep] + 1.0)) + 1.0
+        idf = np.log((len(rows) + 1) / (df[keep] + 1.0)) + 1.0
         return keep, idf
 
     def tfidf(
@@ -152,8 +156,26 @@ class TextCounts:
         X.data *= idf[X.indices]
         return normalize(X, norm="l2", copy=False)
 
+    def kept_per_row(self, rows: np.ndarray, keep: np.ndarray) -> np.ndarray:
+        """How many of the ``keep`` terms each of ``rows`` holds (its non-zeros)."""
+        mask = np.zeros(self.counts.shape[1], dtype=bool)
+        mask[keep] = True
+        C = self.counts[rows]
+        hits = np.concatenate([[0], np.cumsum(mask[C.indices], dtype=np.int64)])
+        out: np.ndarray = hits[C.indptr[1:]] - hits[C.indptr[:-1]]
+        return out
+
     def names(self, keep: np.ndarray) -> list[str]:
         return [f"{self.column}::{self.tag}:{t}" for t in self.terms[keep]]
+
+
+CHUNK_ROWS = 20_000
+"""Rows handled at a time when building matrices, so no step copies a whole matrix."""
+
+
+def row_chunks(rows: np.ndarray, size: int | None = None) -> list[np.ndarray]:
+    size = size or CHUNK_ROWS
+    return [rows[i : i + size] for i in range(0, len(rows), size)] or [rows[:0]]
 
 
 def read_text_columns(frame: pd.DataFrame, columns: list[str]) -> list[TextCounts]:

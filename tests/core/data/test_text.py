@@ -61,7 +61,12 @@ def small_caps(monkeypatch: pytest.MonkeyPatch) -> None:
     )
 
 
-def test_whole_table_features_are_scikit_learns_tfidf(small_caps: None) -> None:
+@pytest.mark.parametrize("chunk", [None, 37])  # also built a slice of rows at a time
+def test_whole_table_features_are_scikit_learns_tfidf(
+    small_caps: None, chunk: int | None, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    if chunk:
+        monkeypatch.setattr(text, "CHUNK_ROWS", chunk)
     frame = tweets_frame(240)
     frame.loc[3, "tweet"] = None  # missing text reads as ""
     data = prepare_dataset(table_from_frame(frame), label="source")
@@ -79,7 +84,10 @@ def test_whole_table_features_are_scikit_learns_tfidf(small_caps: None) -> None:
     assert abs(data.X - sparse.csr_matrix(expected)).max() < 1e-12
 
 
-def test_heldout_values_refit_the_vocabulary_in_each_fold(small_caps: None) -> None:
+def test_heldout_values_refit_the_vocabulary_in_each_fold(
+    small_caps: None, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setattr(text, "CHUNK_ROWS", 50)  # folds built a slice of rows at a time
     frame = tweets_frame(240, seed=1)
     C, folds, seed = 1.0, 5, 0
     settings = FitSettings(kernel="linear", C=C, folds=folds, seed=seed, solver="exact")
