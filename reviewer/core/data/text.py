@@ -169,7 +169,7 @@ class TextCounts:
         return [f"{self.column}::{self.tag}:{t}" for t in self.terms[keep]]
 
 
-CHUNK_ROWS = 20_000
+CHUNK_ROWS = 5_000
 """Rows handled at a time when building matrices, so no step copies a whole matrix."""
 
 
