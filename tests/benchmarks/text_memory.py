@@ -7,7 +7,7 @@ three classes uses its own 300 topic words more often) and a label, then runs
 peak resident memory (``ru_maxrss`` from ``os.wait4``). Budget: 4 GB at 200,000 rows.
 
     python tests/benchmarks/text_memory.py            # 200,000 rows
-    python tests/benchmarks/text_memory.py --smoke --out-dir /tmp/x   # 5,000 rows
+    python tests/benchmarks/text_memory.py --smoke --out-dir /tmp/x   # 2,000 rows
 """
 
 from __future__ import annotations
@@ -116,11 +116,11 @@ def run_scan(data: Path, work: Path) -> dict:
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--smoke", action="store_true", help="5,000 rows, a quick check")
+    parser.add_argument("--smoke", action="store_true", help="2,000 rows, a quick check")
     parser.add_argument("--rows", type=int, default=None)
     parser.add_argument("--out-dir", type=Path, default=RESULTS)
     args = parser.parse_args(argv)
-    rows = args.rows or (5_000 if args.smoke else 200_000)
+    rows = args.rows or (2_000 if args.smoke else 200_000)
     with tempfile.TemporaryDirectory() as tmp:
         work = Path(tmp)
         data = work / "tickets.csv"
