@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from reviewer.core.data.dataset import Vectors
 from reviewer.core.data.loading import LoadedTable, load_table, table_from_frame
 from reviewer.core.data.roles import KINDS
 from reviewer.core.model.engine import SoftMarginClassifier
@@ -75,6 +76,7 @@ __all__ = [
     "ScanOutcome",
     "SoftMarginClassifier",
     "TablePreview",
+    "Vectors",
     "boundary_in_projection",
     "c_curve_job",
     "check_address",
@@ -116,11 +118,14 @@ def scan_file(
     settings: FitSettings | None = None,
     treat_as_classes: bool = False,
     sheet: str | None = None,
+    overrides: Mapping[str, str] | None = None,
+    vectors: str | Path | None = None,
     progress: Callable[[float, str], None] | None = None,
     jobs: int | None = None,
     cluster: str | None = None,
 ) -> ScanOutcome:
-    """Load a table and rank its rows: the ``scan`` command's work.
+    """Load a table and rank its rows: the ``scan`` command's work. ``overrides`` maps a
+    column to one of KINDS; ``vectors`` is a .npy file of shape (rows, d).
 
     ``jobs`` (default: every usable core) and ``cluster`` (a Dask scheduler address,
     tcp://HOST:PORT) say where the held-out folds run; the results do not depend on them.
@@ -132,7 +137,9 @@ def scan_file(
         label,
         id_column=id_column,
         settings=settings,
+        overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=report.slice(0.1, 1.0),
         jobs=jobs,
         cluster=cluster,
@@ -149,6 +156,8 @@ def probe_file(
     seed: int = 0,
     treat_as_classes: bool = False,
     sheet: str | None = None,
+    overrides: Mapping[str, str] | None = None,
+    vectors: str | Path | None = None,
     progress: Callable[[float, str], None] | None = None,
     jobs: int | None = None,
     cluster: str | None = None,
@@ -163,7 +172,9 @@ def probe_file(
         settings=settings,
         rate=rate,
         seed=seed,
+        overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=report.slice(0.1, 1.0),
         jobs=jobs,
         cluster=cluster,
@@ -178,6 +189,7 @@ def scan_loaded(
     settings: FitSettings | None = None,
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
+    vectors: Vectors | None = None,
     progress: Callable[[float, str], None] | None = None,
     jobs: int | None = None,
     cluster: str | None = None,
@@ -190,6 +202,7 @@ def scan_loaded(
         settings=settings or FitSettings(),
         overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=progress,
         jobs=jobs,
         cluster=cluster,
@@ -206,6 +219,7 @@ def probe_loaded(
     seed: int = 0,
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
+    vectors: Vectors | None = None,
     progress: Callable[[float, str], None] | None = None,
     jobs: int | None = None,
     cluster: str | None = None,
@@ -220,6 +234,7 @@ def probe_loaded(
         seed=seed,
         overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=progress,
         jobs=jobs,
         cluster=cluster,

@@ -15,13 +15,14 @@ new settings".
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
 from reviewer.core.errors import SessionError
 from reviewer.core.model.fitting import FitResult, fit_margins
+from reviewer.core.model.heldout import FoldFeatures
 from reviewer.core.plain import plain
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.review.sessionfile import FitRecord
@@ -37,7 +38,7 @@ if TYPE_CHECKING:
 class FitJob:
     """A snapshot of everything a fit needs, so it can run on a worker thread."""
 
-    X: np.ndarray
+    X: Any  # dense array, or CSR with text columns
     labels: np.ndarray
     excluded: np.ndarray
     settings: FitSettings
@@ -48,6 +49,8 @@ class FitJob:
     jobs: int | None = None
     cluster: str | None = None
     """Where the held-out folds run (the session's jobs and cluster); never changes results."""
+    fold_features: FoldFeatures | None = None
+    """Rebuilds a held-out fold's matrices from its training rows (text columns)."""
 
 
 @dataclass
@@ -79,6 +82,7 @@ def prepare_fit(
         edits,
         jobs=getattr(session, "jobs", None),
         cluster=getattr(session, "cluster", None),
+        fold_features=session.fold_features,
     )
 
 
@@ -100,6 +104,7 @@ def compute_fit(
         cancel=cancel,
         jobs=job.jobs,
         cluster=job.cluster,
+        fold_features=job.fold_features,
     )
     edits_only = None
     if job.edits_settings is not None and not result.settings.same_fit_as(job.edits_settings):
@@ -112,6 +117,7 @@ def compute_fit(
             cancel=cancel,
             jobs=job.jobs,
             cluster=job.cluster,
+            fold_features=job.fold_features,
         )
     report(1.0, "fit finished")
     return FitPair(result, edits_only)
