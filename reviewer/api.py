@@ -37,6 +37,7 @@ def scan(
     folds: int = 5,
     seed: int = 0,
     roles: Mapping[str, str] | None = None,
+    vectors: door.Vectors | None = None,
     progress: Progress | None = None,
 ) -> pd.DataFrame:
     """Rank every row of ``data`` by how strongly a soft-margin model disagrees with its label.
@@ -44,8 +45,10 @@ def scan(
     Returns the same columns, in the same order, as ``margin-reviewer scan`` writes
     (``row_id, label, model_label, margin, slack, heldout_margin, heldout_slack, alpha,
     zone, support, score, rank``), one row per input row in input order; a DataFrame keeps
-    its index. ``roles`` maps a column to ``numeric``, ``categorical`` or ``ignore``;
-    ``progress(fraction, message)`` is called during the work. The ranking suggests; a
+    its index. ``roles`` maps a column to ``numeric``, ``categorical``, ``text``,
+    ``vector`` or ``ignore``; ``vectors`` (a ``.npy`` file or a numpy array of shape
+    (rows, d), in row order) adds one feature per element; ``progress(fraction, message)``
+    is called during the work. The ranking suggests; a
     person decides.
     """
     settings = _settings("scan", kernel=kernel, C=C, gamma=gamma, folds=folds, seed=seed)
@@ -57,6 +60,7 @@ def scan(
         id_column=id,
         settings=settings,
         overrides=dict(roles or {}),
+        vectors=_vectors("scan", vectors),
         progress=_progress("scan", progress),
     )
     table = outcome.table
@@ -77,6 +81,7 @@ def probe(
     folds: int = 5,
     seed: int = 0,
     roles: Mapping[str, str] | None = None,
+    vectors: door.Vectors | None = None,
     progress: Progress | None = None,
 ) -> door.ProbeResult:
     """Plant ``rate`` label flips in a copy of ``data`` and measure how many the ranking finds.
@@ -100,6 +105,7 @@ def probe(
         rate=float(rate),
         seed=seed,
         overrides=dict(roles or {}),
+        vectors=_vectors("probe", vectors),
         progress=_progress("probe", progress),
     )
 
@@ -153,6 +159,17 @@ def _check_columns(
         raise InputError(
             f"{fn}(): argument 'roles' must map column names to kinds, got {type(roles).__name__}"
         )
+
+
+def _vectors(fn: str, vectors: Any) -> door.Vectors | None:
+    import numpy as np
+
+    if vectors is None or isinstance(vectors, (str, os.PathLike, np.ndarray)):
+        return vectors
+    raise InputError(
+        f"{fn}(): argument 'vectors' must be a .npy file path or a numpy array of shape "
+        f"(rows, d), got {type(vectors).__name__}"
+    )
 
 
 def _progress(fn: str, progress: Any) -> Progress | None:

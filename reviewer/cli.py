@@ -41,6 +41,36 @@ def _positive_float(text: str) -> float:
     return value
 
 
+def _role(text: str) -> tuple[str, str]:
+    column, sep, kind = text.rpartition("=")
+    if not sep or not column.strip() or not kind.strip():
+        raise argparse.ArgumentTypeError(
+            f"expected COLUMN=KIND (kind: numeric, categorical, text, vector or ignore), "
+            f"got {text!r}"
+        )
+    return column.strip(), kind.strip().lower()
+
+
+def _add_data_options(p: argparse.ArgumentParser, *, roles: bool = True) -> None:
+    """--role and --vectors, shared by scan, probe and open."""
+    if roles:
+        p.add_argument(
+            "--role",
+            dest="roles",
+            action="append",
+            type=_role,
+            default=[],
+            metavar="COLUMN=KIND",
+            help="set a column's kind: numeric, categorical, text, vector or ignore (repeatable)",
+        )
+    p.add_argument(
+        "--vectors",
+        metavar="FILE",
+        help="a .npy file of shape (rows, d): one vector per table row, in row order, "
+        "used as features",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(
         prog="margin-reviewer",
@@ -61,6 +91,7 @@ def build_parser() -> argparse.ArgumentParser:
     p_open.add_argument("--label", help="the label column")
     p_open.add_argument("--id", dest="id_column", help="the id column")
     p_open.add_argument("--session", help="session file (default: beside the data file)")
+    _add_data_options(p_open, roles=False)
 
     p_scan = sub.add_parser("scan", help="rank rows by slack and write one row per input row")
     p_scan.add_argument("data")
@@ -86,6 +117,7 @@ def build_parser() -> argparse.ArgumentParser:
         action="store_true",
         help="review a numeric label with many distinct values as classes anyway",
     )
+    _add_data_options(p_scan)
     p_scan.add_argument(
         "--out",
         help="output file: CSV, or Parquet when it ends in .parquet (default: standard output); "
@@ -115,6 +147,7 @@ def build_parser() -> argparse.ArgumentParser:
         action="store_true",
         help="review a numeric label with many distinct values as classes anyway",
     )
+    _add_data_options(p_probe)
 
     p_export = sub.add_parser("export", help="write the cleaned table, audit log and summary")
     p_export.add_argument("session")
@@ -193,6 +226,8 @@ def _scan(args: argparse.Namespace) -> int:
             settings=settings,
             treat_as_classes=args.treat_as_classes,
             sheet=args.sheet,
+            overrides=_overrides(args),
+            vectors=args.vectors,
             progress=progress,
         )
     table = outcome.table
@@ -208,7 +243,7 @@ def _scan(args: argparse.Namespace) -> int:
         f"rows: {s.n_rows} ({s.n_fitted} fitted, {s.n_unlabelled} unlabelled)",
         f"classes: {', '.join(f'{c} ({n})' for c, n in s.class_counts.items())}",
         f"zones: {zones}",
-        *_column_lines(outcome.roles),
+        *_column_lines(outcome.roles, outcome.feature_names, args.vectors),
         f"settings: kernel={used.kernel}, C={float(used.C or 0):g}{gamma}, folds={used.folds}, "
         f"score={used.score}",
         *[f"note: {n}" for n in s.notes],
@@ -244,8 +279,13 @@ def _write_summary(args: argparse.Namespace, outcome: Any, seconds: float) -> No
         "columns": {
             **{c: "numeric" for c in roles.numeric},
             **{c: "categorical" for c in roles.categorical},
+            **{c: "text" for c in roles.text},
+            **{c: "vector" for c in roles.vector},
             **{c: f"ignored: {why}" for c, why in roles.ignored.items()},
         },
+        "vectors": str(Path(args.vectors).resolve()) if args.vectors else None,
+        "features": len(outcome.feature_names),
+        "feature_nonzeros": outcome.nonzeros,
         "notes": list(s.notes),
         "out": str(Path(args.out).resolve()) if args.out else None,
         "seconds": round(seconds, 3),
@@ -290,17 +330,46 @@ class _progress_bar:
             self.bar.close()
 
 
-def _column_lines(roles: object) -> list[str]:
-    """One summary line per column kind; ignored columns with their reasons."""
+def _column_lines(
+    roles: object, feature_names: Sequence[str] = (), vectors: str | None = None
+) -> list[str]:
+    """One summary line per column kind (text and vector columns with the number of
+    features they give); ignored columns with their reasons; the vectors file."""
+    names = list(feature_names)
+
+    def width(col: str, kind: str) -> str:
+        prefix = f"{col}::" if kind == "text" else f"{col}["
+        n = sum(1 for f in names if f.startswith(prefix))
+        return f"{col} ({n:,} features)" if names else col
+
     kinds = [
         ("label", [getattr(roles, "label", None)]),
         ("id", [getattr(roles, "id", None)]),
         ("numeric", list(getattr(roles, "numeric", []))),
         ("categorical", list(getattr(roles, "categorical", []))),
+        ("text", [width(c, "text") for c in getattr(roles, "text", [])]),
+        ("vector", [width(c, "vector") for c in getattr(roles, "vector", [])]),
     ]
     lines = [f"{kind}: {', '.join(map(str, cols))}" for kind, cols in kinds if any(cols)]
     lines += [f"ignored: {col} ({why})" for col, why in getattr(roles, "ignored", {}).items()]
+    if vectors:
+        n = sum(1 for f in names if f.startswith("vectors["))
+        lines.append(f"vectors: {vectors} ({n:,} features)")
     return lines
+
+
+def _overrides(args: argparse.Namespace) -> dict[str, str]:
+    """--role choices as column -> kind; a column named twice is refused."""
+    out: dict[str, str] = {}
+    for column, kind in getattr(args, "roles", []) or []:
+        if column in out and out[column] != kind:
+            from reviewer.core.errors import SettingsError
+
+            raise SettingsError(
+                f"--role: column {column!r} is given two kinds ({out[column]}, {kind})"
+            )
+        out[column] = kind
+    return out
 
 
 def _probe(args: argparse.Namespace) -> int:
@@ -325,6 +394,8 @@ def _probe(args: argparse.Namespace) -> int:
             seed=args.seed,
             treat_as_classes=args.treat_as_classes,
             sheet=args.sheet,
+            overrides=_overrides(args),
+            vectors=args.vectors,
             progress=progress,
         )
     sys.stdout.write(format_probe(result) + "\n")
@@ -384,7 +455,13 @@ def _window(args: argparse.Namespace) -> int:
             DEMO_DIR / "coffee_lots.csv", label="grade", id_column="lot_id", demo=True
         )
     if args.command == "open" and args.data:
+        # The window takes vectors= only when a vectors file is given.
+        extra: dict[str, Any] = {"vectors": Path(args.vectors)} if args.vectors else {}
         return run_window(
-            Path(args.data), label=args.label, id_column=args.id_column, session=args.session
+            Path(args.data),
+            label=args.label,
+            id_column=args.id_column,
+            session=args.session,
+            **extra,
         )
     return run_window(None)

@@ -134,7 +134,7 @@ def test_compressed_csv_reads_as_pandas_reads_it(tmp_path: Path) -> None:
     assert ok.stdout == plain.stdout
 
 
-def test_a_parquet_list_column_is_ignored_with_its_reason(tmp_path: Path) -> None:
+def test_a_parquet_list_column_of_numbers_is_a_vector_feature(tmp_path: Path) -> None:
     rng = np.random.default_rng(2)
     frame = pd.DataFrame({"x": rng.normal(size=80), "label": ["a", "b"] * 40})
     frame["vec"] = [rng.normal(size=3) for _ in range(80)]
@@ -142,7 +142,7 @@ def test_a_parquet_list_column_is_ignored_with_its_reason(tmp_path: Path) -> Non
     frame.to_parquet(path)
     ok = run("scan", str(path), "--label", "label", *FAST)
     assert ok.returncode == 0, ok.stderr
-    assert "ignored: vec (a list or record per row" in ok.stderr
+    assert "vector: vec (3 features)" in ok.stderr
 
 
 def test_verify_finds_a_changed_or_missing_export_file(tmp_path: Path) -> None:

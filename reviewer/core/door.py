@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from reviewer.core.data.dataset import Vectors
 from reviewer.core.data.loading import LoadedTable, load_table, table_from_frame
 from reviewer.core.data.roles import KINDS
 from reviewer.core.model.engine import SoftMarginClassifier
@@ -69,6 +70,7 @@ __all__ = [
     "ScanOutcome",
     "SoftMarginClassifier",
     "TablePreview",
+    "Vectors",
     "boundary_in_projection",
     "c_curve_job",
     "check_scan_target",
@@ -106,9 +108,12 @@ def scan_file(
     settings: FitSettings | None = None,
     treat_as_classes: bool = False,
     sheet: str | None = None,
+    overrides: Mapping[str, str] | None = None,
+    vectors: str | Path | None = None,
     progress: Callable[[float, str], None] | None = None,
 ) -> ScanOutcome:
-    """Load a table and rank its rows: the ``scan`` command's work."""
+    """Load a table and rank its rows: the ``scan`` command's work. ``overrides`` maps a
+    column to one of KINDS; ``vectors`` is a .npy file of shape (rows, d)."""
     report = Reporter(progress)
     loaded = load_table(data, sheet=sheet, progress=report.slice(0.0, 0.1))
     return scan_loaded(
@@ -116,7 +121,9 @@ def scan_file(
         label,
         id_column=id_column,
         settings=settings,
+        overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=report.slice(0.1, 1.0),
     )
 
@@ -131,6 +138,8 @@ def probe_file(
     seed: int = 0,
     treat_as_classes: bool = False,
     sheet: str | None = None,
+    overrides: Mapping[str, str] | None = None,
+    vectors: str | Path | None = None,
     progress: Callable[[float, str], None] | None = None,
 ) -> ProbeResult:
     """Load a table, plant known flips in a copy and measure how many the ranking finds."""
@@ -143,7 +152,9 @@ def probe_file(
         settings=settings,
         rate=rate,
         seed=seed,
+        overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=report.slice(0.1, 1.0),
     )
 
@@ -156,6 +167,7 @@ def scan_loaded(
     settings: FitSettings | None = None,
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
+    vectors: Vectors | None = None,
     progress: Callable[[float, str], None] | None = None,
 ) -> ScanOutcome:
     """Rank the rows of a table already loaded (from a file or a DataFrame)."""
@@ -166,6 +178,7 @@ def scan_loaded(
         settings=settings or FitSettings(),
         overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=progress,
     )
 
@@ -180,6 +193,7 @@ def probe_loaded(
     seed: int = 0,
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
+    vectors: Vectors | None = None,
     progress: Callable[[float, str], None] | None = None,
 ) -> ProbeResult:
     """The probe on a table already loaded."""
@@ -192,6 +206,7 @@ def probe_loaded(
         seed=seed,
         overrides=overrides,
         treat_as_classes=treat_as_classes,
+        vectors=vectors,
         progress=progress,
     )
 

@@ -11,11 +11,13 @@ import pandas as pd
 from reviewer.core.data.loading import label_strings
 from reviewer.core.errors import InputError
 
-KINDS = ("numeric", "categorical", "ignore")
+KINDS = ("numeric", "categorical", "text", "vector", "ignore")
 MAX_CATEGORY_LEVELS = 200
 # A text column is numeric when this share of its values parse as numbers.
 NUMERIC_SHARE = 0.95
 # ISO 8601 dates and date-times, optionally with a time part (the open standard's layout).
+NO_TEXT = "no text"
+"""The reason a text column with every value missing or blank is ignored."""
 DATE_PATTERN = r"^\d{4}-\d{2}-\d{2}([T ]\d{2}:\d{2}(:\d{2}(\.\d+)?)?(Z|[+-]\d{2}:?\d{2})?)?$"
 
 
@@ -26,10 +28,23 @@ class ColumnRoles:
     numeric: list[str] = field(default_factory=list)
     categorical: list[str] = field(default_factory=list)
     ignored: dict[str, str] = field(default_factory=dict)  # column -> reason
+    text: list[str] = field(default_factory=list)  # free text: TF-IDF features
+    vector: list[str] = field(default_factory=list)  # a list of numbers per row
 
     @property
     def features(self) -> list[str]:
-        return [*self.numeric, *self.categorical]
+        return [*self.numeric, *self.categorical, *self.text, *self.vector]
+
+    def kind_of(self, column: str) -> str:
+        """The column's kind: label, id, one of KINDS."""
+        if column == self.label:
+            return "label"
+        if column == self.id:
+            return "id"
+        for kind in ("numeric", "categorical", "text", "vector"):
+            if column in getattr(self, kind):
+                return kind
+        return "ignore"
 
     def to_dict(self) -> dict:
         return {
@@ -37,6 +52,8 @@ class ColumnRoles:
             "id": self.id,
             "numeric": list(self.numeric),
             "categorical": list(self.categorical),
+            "text": list(self.text),
+            "vector": list(self.vector),
             "ignored": dict(self.ignored),
         }
 
@@ -48,6 +65,8 @@ class ColumnRoles:
             numeric=list(data.get("numeric", [])),
             categorical=list(data.get("categorical", [])),
             ignored=dict(data.get("ignored", {})),
+            text=list(data.get("text") or []),
+            vector=list(data.get("vector") or []),
         )
 
 
@@ -87,8 +106,15 @@ def infer_roles(
     label: str,
     id_column: str | None = None,
     overrides: Mapping[str, str] | None = None,
+    *,
+    require_features: bool = True,
 ) -> ColumnRoles:
-    """Decide each column's role. ``overrides`` maps a column to numeric, categorical or ignore."""
+    """Decide each column's role. ``overrides`` maps a column to one of KINDS.
+    ``require_features=False`` accepts a table with no feature column (its features come
+    from a vectors file).
+
+    A column chosen as text that holds no text at all (every value missing or blank) is
+    ignored with the reason "no text"; a table whose only feature is text is accepted."""
     columns = list(frame.columns)
     if label not in columns:
         raise InputError(f"label column {label!r} not found; columns are {_list(columns)}")
@@ -113,13 +139,13 @@ def infer_roles(
             kind, reason = infer_kind(frame[col])
         else:
             kind, reason = chosen, "ignored by choice" if chosen == "ignore" else ""
-        if kind == "numeric":
-            roles.numeric.append(col)
-        elif kind == "categorical":
-            roles.categorical.append(col)
-        else:
+            if kind == "text" and not has_text(frame[col]):
+                kind, reason = "ignore", NO_TEXT
+        if kind == "ignore":
             roles.ignored[col] = reason
-    if not roles.features:
+        else:
+            getattr(roles, kind).append(col)
+    if not roles.features and require_features:
         reasons = "; ".join(f"{c}: {r}" for c, r in roles.ignored.items()) or "no other columns"
         raise InputError(f"no usable feature column besides the label ({reasons})")
     return roles
@@ -137,7 +163,11 @@ def infer_kind(values: pd.Series) -> tuple[str, str]:
     if pd.api.types.is_bool_dtype(s.dtype):
         return ("numeric", "") if present.nunique() > 1 else ("ignore", "constant")
     if s.dtype == object and isinstance(present.iloc[0], (list, tuple, np.ndarray, dict)):
-        return "ignore", "a list or record per row (vector columns are not features yet)"
+        if _looks_like_vectors(present):
+            return "vector", ""
+        return "ignore", "a list or record per row that is not a list of numbers"
+    if not pd.api.types.is_numeric_dtype(s.dtype) and not has_text(present):
+        return "ignore", NO_TEXT
     n_unique = present.nunique()
     if n_unique <= 1:
         return "ignore", "constant"
@@ -155,15 +185,43 @@ def infer_kind(values: pd.Series) -> tuple[str, str]:
         return "ignore", "date or time (not used as a feature)"
     if n_unique == n_present and n_present > 20:
         if text.str.contains(r"\s").mean() > 0.5:
-            return "ignore", "free text"
+            return "text", ""
         return "ignore", "identifier-like (every value distinct)"
-    if text.str.len().mean() > 40 and text.str.contains(r"\s").mean() > 0.5:
-        return "ignore", "free text"
+    # Judged on the distinct values, so a column whose rows mostly repeat a marker (say
+    # "n/a") around real sentences still reads as text.
+    distinct = text.drop_duplicates()
+    if distinct.str.len().mean() > 40 and distinct.str.contains(r"\s").mean() > 0.5:
+        return "text", ""
     if n_unique > MAX_CATEGORY_LEVELS:
         if text.str.contains(r"\s").mean() > 0.5:
-            return "ignore", "free text"
+            return "text", ""
         return "ignore", f"too many distinct values ({n_unique:,}) for a category"
     return "categorical", ""
+
+
+def has_text(values: pd.Series) -> bool:
+    """Whether any value is text with something other than white space in it."""
+    present = values.dropna()
+    if len(present) == 0:
+        return False
+    return bool(present.astype(str).str.strip().str.len().gt(0).any())
+
+
+def _looks_like_vectors(present: pd.Series) -> bool:
+    """Lists (or arrays) of numbers, judged on a sample of the rows; the full check (same
+    length, finite numbers) comes when the features are built, with its own message."""
+    for value in present.iloc[:50]:
+        if isinstance(value, dict):
+            return False
+        try:
+            arr = np.asarray(value)
+        except (ValueError, TypeError):  # nested lists of different lengths
+            return False
+        if arr.ndim != 1 or not (
+            np.issubdtype(arr.dtype, np.number) or np.issubdtype(arr.dtype, np.bool_)
+        ):
+            return False
+    return True
 
 
 def check_unique_ids(values: pd.Series, column: str) -> None:

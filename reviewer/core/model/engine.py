@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+import scipy.sparse as sp
 from sklearn.base import BaseEstimator, ClassifierMixin
 from sklearn.svm import SVC
 from sklearn.utils.class_weight import compute_sample_weight
@@ -81,25 +82,41 @@ class BinaryFit:
     n_iter: int | None = None
     _estimator: Any = field(default=None, repr=False)
 
-    def decision_function(self, X: np.ndarray) -> np.ndarray:
+    def decision_function(self, X: np.ndarray | sp.spmatrix) -> np.ndarray:
+        """f(x) for the rows of X (dense, or scipy.sparse CSR)."""
         if self.w is not None and self._estimator is None:
-            return X @ self.w + self.intercept
+            return np.asarray(X @ self.w, dtype=float).ravel() + self.intercept
         return _chunked(self._estimator.decision_function, X)
 
 
-def _chunked(fn, X: np.ndarray, rows: int = 50_000) -> np.ndarray:
-    if len(X) <= rows:
+def _chunked(fn, X: np.ndarray | sp.spmatrix, rows: int = 50_000) -> np.ndarray:
+    n = X.shape[0]
+    if n <= rows:
         return np.asarray(fn(X), dtype=float).ravel()
     return np.concatenate(
-        [np.asarray(fn(X[i : i + rows]), dtype=float).ravel() for i in range(0, len(X), rows)]
+        [np.asarray(fn(X[i : i + rows]), dtype=float).ravel() for i in range(0, n, rows)]
     )
 
 
-def resolve_gamma(gamma: float | str, X: np.ndarray) -> float:
-    """'scale' is 1 / (n_features * Var(X)), the rule scikit-learn's SVC uses."""
+def resolve_gamma(gamma: float | str, X: np.ndarray | sp.spmatrix) -> float:
+    """'scale' is 1 / (n_features * Var(X)), the rule scikit-learn's SVC uses.
+
+    Var(X) is the variance of all n * d entries, zeros included; for sparse X it is
+    E[x^2] - E[x]^2 over the stored values (as scikit-learn computes it), never densified.
+    """
     if gamma == "scale":
-        var = float(X.var()) if X.size else 0.0
-        return 1.0 / (X.shape[1] * var) if var > 0 else 1.0
+        n, d = X.shape
+        if n * d == 0:
+            return 1.0
+        if sp.issparse(X):
+            Xc = sp.csr_matrix(X)
+            Xc.sum_duplicates()
+            data = Xc.data
+            mean = float(data.sum()) / (n * d)
+            var = max(float(data @ data) / (n * d) - mean * mean, 0.0)
+        else:
+            var = float(X.var())
+        return 1.0 / (d * var) if var > 0 else 1.0
     return float(gamma)
 
 
@@ -185,7 +202,9 @@ def fit_binary(
         svc.fit(X, ypm, sample_weight=None if sample_weight is None else s)
     converged = not any("terminated early" in str(w.message) for w in caught)
     alpha = np.zeros(n)
-    alpha[svc.support_] = np.abs(svc.dual_coef_[0])
+    # On sparse input scikit-learn stores dual_coef_ and coef_ as sparse matrices.
+    dual_coef = svc.dual_coef_.toarray() if sp.issparse(svc.dual_coef_) else svc.dual_coef_
+    alpha[svc.support_] = np.abs(dual_coef[0])
     # SVC orders classes as [-1, +1]; its decision is positive for +1.
     f = np.asarray(svc.decision_function(X), dtype=float)
     b = float(svc.intercept_[0])
@@ -194,7 +213,10 @@ def fit_binary(
     hinge = np.maximum(0.0, 1.0 - ypm * f)
     primal = 0.5 * w_sq + C * float(np.sum(s * hinge))
     dual = float(np.sum(alpha)) - 0.5 * w_sq
-    w = np.asarray(svc.coef_[0], dtype=float).copy() if kernel == "linear" else None
+    w = None
+    if kernel == "linear":
+        coef = svc.coef_.toarray() if sp.issparse(svc.coef_) else svc.coef_
+        w = np.asarray(coef[0], dtype=float).copy()
     return BinaryFit(
         alpha=alpha,
         upper=C * s,
@@ -248,7 +270,7 @@ def fit_binary_large(
     upper = C * sample_weight
     if kernel == "linear":
         res = solvers.fit_linear_hinge(X, ypm, C, sample_weight=sample_weight)
-        f = X @ res.w + res.b
+        f = np.asarray(X @ res.w, dtype=float).ravel() + res.b
         return BinaryFit(
             alpha=np.asarray(res.alpha, dtype=float),
             upper=upper,
@@ -313,6 +335,11 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
         self.class_weight = class_weight
         self.solver = solver
 
+    def __sklearn_tags__(self) -> Any:
+        tags = super().__sklearn_tags__()
+        tags.input_tags.sparse = True  # CSR (TF-IDF) input is fitted without densifying
+        return tags
+
     def fit(
         self,
         X: np.ndarray,
@@ -325,7 +352,7 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
             raise SettingsError(f"kernel {self.kernel!r} is not one of {', '.join(KERNELS)}")
         if not (np.isfinite(self.C) and self.C > 0):
             raise SettingsError(f"C must be a positive number, got {self.C!r}")
-        X, y = validate_data(self, X, y, dtype=np.float64)
+        X, y = validate_data(self, X, y, dtype=np.float64, accept_sparse="csr")
         check_classification_targets(y)
         self.classes_, y_idx = np.unique(y, return_inverse=True)
         k = len(self.classes_)
@@ -366,7 +393,7 @@ class SoftMarginClassifier(ClassifierMixin, BaseEstimator):
     def decision_matrix(self, X: np.ndarray) -> np.ndarray:
         """(n, K) decision values; for two classes the columns are (-f, f)."""
         check_is_fitted(self)
-        X = validate_data(self, X, dtype=np.float64, reset=False)
+        X = validate_data(self, X, dtype=np.float64, accept_sparse="csr", reset=False)
         if len(self.classes_) == 2:
             f = self.problems_[0].decision_function(X)
             return np.column_stack([-f, f])

@@ -103,7 +103,7 @@ def fit_margins(
         )
     resolved = settings.to_dict()
     candidates: list[dict] = []
-    Xf = X[fit_rows]
+    Xf = X if len(fit_rows) == n else X[fit_rows]  # no copy when every row is fitted
     if settings.kernel == "auto":
         # Bound auto's work: no rbf C whose scan of this table is predicted over the budget.
         rbf_cs = tuple(

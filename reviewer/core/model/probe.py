@@ -14,10 +14,11 @@ from typing import Any
 import numpy as np
 from sklearn.metrics import average_precision_score, roc_auc_score
 
-from reviewer.core.data.dataset import prepare_dataset
+from reviewer.core.data.dataset import Vectors, prepare_dataset
 from reviewer.core.data.loading import LoadedTable, label_strings
 from reviewer.core.errors import InputError, SettingsError
 from reviewer.core.model.fitting import fit_margins
+from reviewer.core.model.heldout import FoldFeatures
 from reviewer.core.plain import plain
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.values import FitSettings
@@ -126,11 +127,14 @@ def probe_labels(
     seed: int = 0,
     progress: ProgressFn | None = None,
     cancel=None,
+    fold_features: FoldFeatures | None = None,
 ) -> ProbeResult:
     """Flip ``rate`` of the labelled rows, fit as scan would, and score where the flips rank."""
     labels = np.asarray(labels, dtype=object)
     planted, rows = plant_flips(labels, rate, seed)
-    fit = fit_margins(X, planted, settings, progress=progress, cancel=cancel)
+    fit = fit_margins(
+        X, planted, settings, progress=progress, cancel=cancel, fold_features=fold_features
+    )
     rank = fit.rows["rank"].to_numpy()
     ranked = rank > 0  # rows with a score (labelled rows)
     n_ranked = int(ranked.sum())
@@ -186,6 +190,7 @@ def probe_table(
     seed: int = 0,
     overrides: Mapping[str, str] | None = None,
     treat_as_classes: bool = False,
+    vectors: Vectors | None = None,
     progress: ProgressFn | None = None,
     cancel=None,
 ) -> ProbeResult:
@@ -201,6 +206,7 @@ def probe_table(
         id_column=id_column,
         overrides=overrides,
         check_label=not treat_as_classes,
+        vectors=vectors,
     )
     result = probe_labels(
         data.X,
@@ -210,8 +216,10 @@ def probe_table(
         seed=seed,
         progress=report.slice(0.05, 1.0),
         cancel=cancel,
+        fold_features=data.fold_features,
     )
     result.flipped_ids = data.ids[result.flipped_rows]
+    result.notes.extend(data.notes)
     return result
 
 

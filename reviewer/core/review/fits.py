@@ -15,13 +15,14 @@ new settings".
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
 from reviewer.core.errors import SessionError
 from reviewer.core.model.fitting import FitResult, fit_margins
+from reviewer.core.model.heldout import FoldFeatures
 from reviewer.core.plain import plain
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.review.sessionfile import FitRecord
@@ -37,7 +38,7 @@ if TYPE_CHECKING:
 class FitJob:
     """A snapshot of everything a fit needs, so it can run on a worker thread."""
 
-    X: np.ndarray
+    X: Any  # dense array, or CSR with text columns
     labels: np.ndarray
     excluded: np.ndarray
     settings: FitSettings
@@ -45,6 +46,8 @@ class FitJob:
     baseline: bool
     edits_settings: FitSettings | None = None
     """The baseline's resolved settings, for the edits-alone fit (None for a baseline job)."""
+    fold_features: FoldFeatures | None = None
+    """Rebuilds a held-out fold's matrices from its training rows (text columns)."""
 
 
 @dataclass
@@ -66,7 +69,16 @@ def prepare_fit(
     edits = None
     if not baseline and session.baseline is not None:
         edits = session.baseline.settings.as_fixed()
-    return FitJob(session.X, labels, excluded, settings, session.last_seq, baseline, edits)
+    return FitJob(
+        session.X,
+        labels,
+        excluded,
+        settings,
+        session.last_seq,
+        baseline,
+        edits,
+        fold_features=session.fold_features,
+    )
 
 
 def compute_fit(
@@ -85,6 +97,7 @@ def compute_fit(
         excluded=job.excluded,
         progress=report.slice(0.0, main_end),
         cancel=cancel,
+        fold_features=job.fold_features,
     )
     edits_only = None
     if job.edits_settings is not None and not result.settings.same_fit_as(job.edits_settings):
@@ -95,6 +108,7 @@ def compute_fit(
             excluded=job.excluded,
             progress=report.slice(main_end, 1.0),
             cancel=cancel,
+            fold_features=job.fold_features,
         )
     report(1.0, "fit finished")
     return FitPair(result, edits_only)

@@ -22,6 +22,7 @@ from reviewer.core.data.roles import (
     infer_kind,
     infer_roles,
 )
+from reviewer.core.data.vectors import load_vectors_file
 from reviewer.core.errors import InputError, SessionError, SourceChangedError
 from reviewer.core.progress import ProgressFn, Reporter
 from reviewer.core.review.sessionfile import SessionFile
@@ -118,11 +119,12 @@ def open_session(
     read_only: bool = False,
     reattach: bool = False,
     sheet: str | None = None,
+    vectors: str | os.PathLike[str] | None = None,
     progress: ProgressFn | None = None,
     cancel: threading.Event | None = None,
 ) -> ReviewSession:
     """Open (or start) the review of ``data_path`` (of its ``sheet``, for a workbook; a
-    session remembers its sheet).
+    session remembers its sheet, and the path and SHA-256 of its ``vectors`` file).
 
     An existing session file resumes where the reviewer left off, with its remembered
     roles. If the data file changed since the session began, SourceChangedError is
@@ -134,6 +136,7 @@ def open_session(
     src = loaded.source
     path = Path(session_path) if session_path else default_session_path(src.path, src.sha256)
     warnings: list[str] = []
+    vectors_meta: dict[str, str] | None = None
     if path.exists():
         file = SessionFile.open(path, read_only=read_only)
         try:
@@ -162,7 +165,13 @@ def open_session(
             if roles is None or any(
                 c not in loaded.frame.columns for c in [roles.label, *roles.features]
             ):
-                roles = infer_roles(loaded.frame, label_col, id_col, overrides)
+                roles = infer_roles(
+                    loaded.frame,
+                    label_col,
+                    id_col,
+                    overrides,
+                    require_features=not meta.get("vectors"),
+                )
             settings = FitSettings.from_dict(meta.get("settings") or {})
             changed = meta.get("source_sha256") != src.sha256
             if changed and not (read_only or reattach):
@@ -186,6 +195,9 @@ def open_session(
                 warnings.append(f"{src.path} changed since the session began; opened read-only")
             if file.read_only_reason:
                 warnings.append(file.read_only_reason)
+            vectors_meta = _resumed_vectors(meta.get("vectors"), vectors, path)
+            if vectors_meta != meta.get("vectors") and not file.read_only:
+                file.set_meta("vectors", vectors_meta)
         except BaseException:
             file.close()
             raise
@@ -194,8 +206,12 @@ def open_session(
             raise SessionError(f"no session file at {path} to open read-only")
         if label is None:
             raise InputError(f"{src.path}: choose the label column (--label)")
-        roles = infer_roles(loaded.frame, label, id_column, overrides)
+        roles = infer_roles(
+            loaded.frame, label, id_column, overrides, require_features=vectors is None
+        )
         settings = FitSettings()
+        if vectors is not None:
+            vectors_meta = _vectors_meta(vectors, len(loaded.frame))
         file = SessionFile.create(
             path,
             {
@@ -208,14 +224,66 @@ def open_session(
                 "reviewer": reviewer or default_reviewer(),
                 "app_version": __version__,
                 "sheet": src.sheet,
+                "vectors": vectors_meta,
             },
         )
     try:
         report(0.65, "building features")
-        dataset = prepare_dataset(loaded, roles)
+        dataset = prepare_dataset(
+            loaded, roles, vectors=vectors_meta["path"] if vectors_meta else None
+        )
+        if vectors_meta and dataset.vectors_sha256 != vectors_meta["sha256"]:
+            raise SourceChangedError(
+                f"vectors file {vectors_meta['path']} changed while the session was opening"
+            )
+        warnings.extend(dataset.notes)
         session = cls(dataset, file, reviewer or default_reviewer(), settings, warnings)
     except BaseException:
         file.close()
         raise
     report(1.0, "session open")
     return session
+
+
+def _vectors_meta(vectors: str | os.PathLike[str], n_rows: int) -> dict[str, str]:
+    """What the session file remembers of a vectors file: its path and SHA-256 (the file
+    is checked now, so a bad one is refused before a session file is written)."""
+    _, digest = load_vectors_file(vectors, n_rows)
+    return {"path": str(Path(vectors).expanduser().resolve()), "sha256": digest}
+
+
+def _resumed_vectors(
+    remembered: Mapping[str, str] | None, given: str | os.PathLike[str] | None, session: Path
+) -> dict[str, str] | None:
+    """The vectors file a resumed session uses: the one given, else the one remembered,
+    which must still be there with the same SHA-256."""
+    from reviewer.core.data.vectors import file_sha256
+
+    if given is not None:
+        path = Path(given).expanduser().resolve()
+        if not remembered:
+            raise SessionError(
+                f"session {session} began without a vectors file; a session keeps its "
+                f"features: start a new session file (--session) to use {path}"
+            )
+        if path.exists() and file_sha256(path) != remembered.get("sha256"):
+            raise SourceChangedError(
+                f"vectors file {path} differs from the one session {session} began with "
+                f"({remembered.get('path')}, SHA-256 {str(remembered.get('sha256'))[:12]}...); "
+                "a session keeps its features: start a new session file for new vectors"
+            )
+        return {"path": str(path), "sha256": str(remembered["sha256"])}
+    if not remembered:
+        return None
+    path = Path(remembered["path"])
+    if not path.exists():
+        raise SessionError(
+            f"session {session} uses the vectors file {path}, which is not there any more; "
+            "put it back, or give its new place with --vectors"
+        )
+    if file_sha256(path) != remembered.get("sha256"):
+        raise SourceChangedError(
+            f"vectors file {path} changed since session {session} began (SHA-256 differs); "
+            "a session keeps its features: restore the file or start a new session file"
+        )
+    return dict(remembered)

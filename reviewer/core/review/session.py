@@ -80,6 +80,9 @@ class ReviewSession:
         self.settings = settings
         self.X = dataset.X
         self.feature_names = dataset.feature_names
+        self.fold_features = dataset.fold_features
+        """None without a text column; else rebuilds a held-out fold's features."""
+        self.vectors_path = dataset.vectors_path
         self.warnings = warnings
         self.ids = dataset.ids
         self.source_labels = dataset.labels
@@ -161,6 +164,7 @@ class ReviewSession:
         read_only: bool = False,
         reattach: bool = False,
         sheet: str | None = None,
+        vectors: str | os.PathLike[str] | None = None,
         progress: ProgressFn | None = None,
         cancel: threading.Event | None = None,
     ) -> ReviewSession:
@@ -170,6 +174,10 @@ class ReviewSession:
         roles. If the data file changed since the session began, SourceChangedError is
         raised unless ``read_only`` (look only) or ``reattach`` (match rows by the id
         column; rows that no longer exist are reported in ``warnings``).
+
+        ``vectors`` is a ``.npy`` file of shape (rows, d) matched to the table by row
+        order; the session remembers its path and SHA-256, reloads it on resume and
+        refuses (SourceChangedError) if the file changed.
         """
         return opening.open_session(
             cls,
@@ -182,6 +190,7 @@ class ReviewSession:
             read_only=read_only,
             reattach=reattach,
             sheet=sheet,
+            vectors=vectors,
             progress=progress,
             cancel=cancel,
         )

@@ -49,6 +49,7 @@ META_KEYS = (
     "app_version",
     "created",
     "sheet",
+    "vectors",  # the .npy vectors file: {"path", "sha256"}, or null
 )
 _SQLITE_MAGIC = b"SQLite format 3\x00"
 # Autocommit mode: transactions are opened and closed explicitly. Access from several

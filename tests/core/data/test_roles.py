@@ -40,7 +40,7 @@ def test_each_column_kind_with_a_reason(frame: pd.DataFrame) -> None:
     assert roles.categorical == ["colour"]
     reasons = roles.ignored
     assert "identifier" in reasons["seq"]
-    assert reasons["comment"] == "free text"
+    assert roles.text == ["comment"]  # free text becomes TF-IDF features
     assert "identifier" in reasons["tag"]
     assert reasons["fixed"] == "constant"
     assert reasons["blank"] == "all values missing"
@@ -79,8 +79,8 @@ def test_overrides_are_respected(frame: pd.DataFrame) -> None:
 def test_bad_overrides_are_refused(frame: pd.DataFrame) -> None:
     with pytest.raises(InputError, match="'nope'"):
         infer_roles(frame, "label", overrides={"nope": "numeric"})
-    with pytest.raises(InputError, match=r"'height'.*'text'"):
-        infer_roles(frame, "label", overrides={"height": "text"})
+    with pytest.raises(InputError, match=r"'height'.*'words'.*numeric, categorical, text"):
+        infer_roles(frame, "label", overrides={"height": "words"})
 
 
 def test_missing_label_column_lists_the_columns(frame: pd.DataFrame) -> None:
