@@ -148,9 +148,10 @@ def test_session_contributions_add_up_to_the_fit_decision(tmp_path: Path) -> Non
     pd.read_csv(DEMO, nrows=240).to_csv(path, index=False)
     with ReviewSession.open(path, label="grade", id_column="lot_id") as s:
         assert "no fit" in s.term_contributions(0).attrs["reason"]
-        fit = s.fit(FitSettings(kernel="linear", C=1.0, folds=3))
+        fit = s.fit(FitSettings(kernel="linear", C=1.0, folds=3, solver="exact"))
         assert fit.decision is not None
         classes = fit.classes
+        text_cols = set(s.roles.text)
         for row in (0, 5, 17):
             out = s.term_contributions(row, all_features=True)
             m, g = out.attrs["towards"], out.attrs["against"]
@@ -159,8 +160,14 @@ def test_session_contributions_add_up_to_the_fit_decision(tmp_path: Path) -> Non
             assert out["contribution"].sum() + out.attrs["offset"] == pytest.approx(
                 expect, abs=1e-8
             )
-            # No text column here: nothing to highlight, and no reason to complain.
+            # What the window marks: terms of the row's own text columns, pushing the right way.
             top = s.term_contributions(row)
-            assert top.empty and top.attrs["reason"] == ""
+            assert top.attrs["reason"] == ""
+            assert set(top["column"]) <= text_cols
+            assert (top["contribution"] > 0).all()
+            for col, term, kind in zip(top["column"], top["term"], top["kind"], strict=True):
+                cell = str(s.frame[col].iloc[row]).lower()
+                if kind == "char":
+                    assert term.strip() in cell
         s.fit(FitSettings(kernel="rbf", C=1.0, folds=3))
         assert "linear" in s.term_contributions(0).attrs["reason"]
