@@ -120,6 +120,15 @@ def resolve_gamma(gamma: float | str, X: np.ndarray | sp.spmatrix) -> float:
     return float(gamma)
 
 
+def cost_features(X: np.ndarray | sp.spmatrix) -> int:
+    """Features that count for a kernel solver's cost: d for dense X; for sparse X the mean
+    stored values per row, since LIBSVM's sparse kernel products cost that much."""
+    n, d = X.shape
+    if sp.issparse(X):
+        return max(1, int(np.ceil(sp.csr_matrix(X).nnz / max(n, 1))))
+    return int(d)
+
+
 def predicted_exact_work(n: int, d: int, kernel: str, C: float) -> float:
     """Relative cost of an exact LIBSVM solve, in the units of its kernel's budget."""
     if kernel == "linear":
@@ -165,7 +174,7 @@ def predicted_scan_seconds(n: int, d: int, k: int, kernel: str, C: float, folds:
 
 
 def fit_binary(
-    X: np.ndarray,
+    X: np.ndarray | sp.spmatrix,
     ypm: np.ndarray,
     C: float,
     *,
@@ -184,7 +193,15 @@ def fit_binary(
     n = len(ypm)
     s = np.ones(n) if sample_weight is None else np.asarray(sample_weight, dtype=float)
     if solver == "auto":
-        solver = choose_solver(n, X.shape[1], kernel, C)
+        solver = choose_solver(n, cost_features(X), kernel, C)
+    if kernel == "rbf" and solver == "approximate" and sp.issparse(X):
+        # The Nystroem path needs dense rows (k-means landmarks, a dense map); text matrices
+        # have tens of thousands of columns, so it is refused rather than densified.
+        raise SettingsError(
+            f"the rbf kernel on sparse (text) features is fitted exactly only up to "
+            f"{RBF_EXACT_ROWS:,} rows and within its cost budget; this fit has {n:,} rows: "
+            f"use the linear kernel (the usual choice for text) or a sample of the rows"
+        )
     if kernel in ("linear", "rbf") and solver == "approximate":
         return fit_binary_large(X, ypm, C, kernel=kernel, gamma=gamma, sample_weight=s)
     svc = SVC(
@@ -254,7 +271,7 @@ def nystroem_components(n: int) -> int:
 
 
 def fit_binary_large(
-    X: np.ndarray,
+    X: np.ndarray | sp.spmatrix,
     ypm: np.ndarray,
     C: float,
     *,
@@ -263,8 +280,9 @@ def fit_binary_large(
     sample_weight: np.ndarray,
 ) -> BinaryFit:
     """Large-n path. Linear: the same hinge-loss objective solved in the primal to a certified
-    relative gap of 1e-3 (solvers.fit_linear_hinge). Rbf: a landmark Nystroem map with the
-    same solver on top; its alpha are the values KKT ties to each row's margin."""
+    relative gap of 1e-3 (solvers.fit_linear_hinge; dense or sparse CSR X). Rbf: a landmark
+    Nystroem map with the same solver on top (dense X only); its alpha are the values KKT
+    ties to each row's margin."""
     from reviewer.core.model import solvers
 
     upper = C * sample_weight
@@ -473,6 +491,11 @@ def support_kinds(alpha: np.ndarray, upper: np.ndarray) -> np.ndarray:
     return kind
 
 
+# The summary (saved in the session file as JSON) lists w only up to this many features; a
+# text fit with 100,000 TF-IDF columns keeps w on the in-memory BinaryFit only.
+SUMMARY_W_MAX = 2000
+
+
 def problem_summaries(model: SoftMarginClassifier) -> list[dict[str, Any]]:
     targets = [model.classes_[1]] if len(model.classes_) == 2 else list(model.classes_)
     out = []
@@ -489,7 +512,8 @@ def problem_summaries(model: SoftMarginClassifier) -> list[dict[str, Any]]:
         }
         if p.w is not None:
             norm = float(np.linalg.norm(p.w))
-            entry["w"] = [float(v) for v in p.w]
+            if p.w.shape[0] <= SUMMARY_W_MAX:
+                entry["w"] = [float(v) for v in p.w]
             entry["margin_width"] = 2.0 / norm if norm > 0 else float("inf")
         out.append(entry)
     return out

@@ -14,6 +14,13 @@ repair of the equality constraint, the dual objective sum(alpha) - 1/2 ||sum alp
 is a true lower bound on min P, and the reported gap compares it with the true (unsmoothed)
 primal value. Each Newton step costs two passes over X; the Hessian only involves the rows
 in the band, which are few when n >> d.
+
+With many features (d > CG_FEATURES) or a scipy.sparse X (TF-IDF text) the (d+1) x (d+1)
+Hessian is never formed: the Newton system is solved inexactly by preconditioned conjugate
+gradients with Hessian-vector products on the band rows, the truncated Newton idea of
+trust-region Newton for linear SVMs (Lin, Weng & Keerthi 2008, JMLR 9). The objective, the
+free intercept, the line search and the gap certificate are the same, so the answer is
+certified to the same tolerance; only the route to it differs. X is never densified.
 """
 
 from __future__ import annotations
@@ -21,6 +28,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+import scipy.sparse as sp
 
 from reviewer.core.errors import SettingsError
 
@@ -33,6 +41,16 @@ __all__ = [
     "hinge_primal",
     "project_alpha_feasible",
 ]
+
+# Above this many features (or on sparse X) Newton steps are solved by conjugate gradients
+# instead of a dense (d+1) x (d+1) factorisation; measured in tests/benchmarks/
+# sparse_solver_speed.py (results/sparse_solver_speed.md, "dense d switch").
+CG_FEATURES = 1000
+# Conjugate gradients stop once the residual is below CG_FORCING times the gradient (an
+# inexact Newton step; the outer loop's certified gap decides when the fit is done), or
+# after CG_MAX_ITER products.
+CG_FORCING = 0.1
+CG_MAX_ITER = 250
 
 
 @dataclass
@@ -52,13 +70,16 @@ class LinearHingeResult:
 
 
 def _check_inputs(
-    X: np.ndarray, y: np.ndarray, C: float, sample_weight: np.ndarray | None
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    X = np.asarray(X)
-    if X.ndim != 2:
-        raise SettingsError(f"X must be a 2-D feature matrix, got shape {X.shape}")
-    if X.dtype != np.float64:
-        X = X.astype(np.float64)
+    X: np.ndarray | sp.spmatrix, y: np.ndarray, C: float, sample_weight: np.ndarray | None
+) -> tuple[np.ndarray | sp.csr_matrix, np.ndarray, np.ndarray]:
+    if sp.issparse(X):
+        X = sp.csr_matrix(X, dtype=np.float64)
+    else:
+        X = np.asarray(X)
+        if X.ndim != 2:
+            raise SettingsError(f"X must be a 2-D feature matrix, got shape {X.shape}")
+        if X.dtype != np.float64:
+            X = X.astype(np.float64)
     y = np.asarray(y, dtype=np.float64).ravel()
     if y.shape[0] != X.shape[0]:
         raise SettingsError(f"y has {y.shape[0]} rows but X has {X.shape[0]}")
@@ -79,7 +100,12 @@ def _check_inputs(
 
 
 def hinge_primal(
-    X: np.ndarray, y: np.ndarray, w: np.ndarray, b: float, C: float, s: np.ndarray | None = None
+    X: np.ndarray | sp.spmatrix,
+    y: np.ndarray,
+    w: np.ndarray,
+    b: float,
+    C: float,
+    s: np.ndarray | None = None,
 ) -> float:
     """The true (unsmoothed) soft-margin primal value P(w, b)."""
     slack = np.maximum(0.0, 1.0 - y * (X @ w + b))
@@ -87,7 +113,7 @@ def hinge_primal(
     return float(0.5 * (w @ w) + C * loss)
 
 
-def dual_objective(X: np.ndarray, y: np.ndarray, alpha: np.ndarray) -> float:
+def dual_objective(X: np.ndarray | sp.spmatrix, y: np.ndarray, alpha: np.ndarray) -> float:
     """sum(alpha) - 1/2 ||sum alpha_i y_i x_i||^2; a lower bound on min P if alpha is feasible."""
     v = X.T @ (alpha * y)
     return float(alpha.sum() - 0.5 * (v @ v))
@@ -213,8 +239,83 @@ def _line_search(
     return lo if lo > 0 else t
 
 
+def _weighted_sq_colsum(xb: np.ndarray | sp.csr_matrix, c: np.ndarray) -> np.ndarray:
+    """sum_i c_i x_ij^2 per column j, without densifying a sparse xb or squaring all of a
+    dense one at once."""
+    if sp.issparse(xb):
+        sq = sp.csr_matrix(xb, copy=True)
+        np.square(sq.data, out=sq.data)
+        return np.asarray(sq.T @ c).ravel()
+    out = np.zeros(xb.shape[1])
+    for start in range(0, xb.shape[0], 4096):
+        part = xb[start : start + 4096]
+        out += c[start : start + 4096] @ (part * part)
+    return out
+
+
+def _newton_step_cg(
+    X: np.ndarray | sp.csr_matrix,
+    band: np.ndarray,
+    c_all: np.ndarray,
+    gw: np.ndarray,
+    gb: float,
+    ridge_b: float,
+    forcing: float = CG_FORCING,
+) -> tuple[np.ndarray, float]:
+    """Inexact Newton step (dw, db) by preconditioned conjugate gradients.
+
+    H = [[I + Xb^T diag(cb) Xb, Xb^T cb], [cb^T Xb, sum cb + ridge_b]] on the band rows Xb,
+    applied as H (vw, vb) = (vw + Xb^T (cb * u), cb . u + ridge_b vb) with u = Xb vw + vb;
+    the Jacobi (diagonal) preconditioner is 1 + sum_i cb_i x_ij^2 and sum cb + ridge_b.
+    """
+    if band.mean() < 0.5:
+        xb, cb = X[band], c_all[band]
+    else:
+        # Most rows are in the band: use X as it is, with zero weight outside the band.
+        xb, cb = X, np.where(band, c_all, 0.0)
+    diag_w = 1.0 + _weighted_sq_colsum(xb, cb)
+    diag_b = float(cb.sum()) + ridge_b
+
+    xbt = xb.T  # built once: a sparse transpose is a new object each time
+
+    def hess(vw: np.ndarray, vb: float) -> tuple[np.ndarray, float]:
+        u = np.asarray(xb @ vw).ravel() + vb
+        cu = cb * u
+        return vw + np.asarray(xbt @ cu).ravel(), float(cu.sum()) + ridge_b * vb
+
+    g_norm = float(np.sqrt(gw @ gw + gb * gb))
+    sol_w, sol_b = np.zeros_like(gw), 0.0
+    rw, rb = -gw, -gb
+    zw, zb = rw / diag_w, rb / diag_b
+    pw, pb = zw.copy(), zb
+    rz = float(rw @ zw + rb * zb)
+    for _ in range(CG_MAX_ITER):
+        hw, hb = hess(pw, pb)
+        php = float(pw @ hw + pb * hb)
+        if php <= 0.0:
+            break
+        a = rz / php
+        sol_w += a * pw
+        sol_b += a * pb
+        rw -= a * hw
+        rb -= a * hb
+        if np.sqrt(rw @ rw + rb * rb) <= forcing * g_norm:
+            break
+        zw, zb = rw / diag_w, rb / diag_b
+        rz_new = float(rw @ zw + rb * zb)
+        beta = rz_new / rz
+        pw = zw + beta * pw
+        pb = zb + beta * pb
+        rz = rz_new
+    if not np.any(sol_w) and sol_b == 0.0:
+        # No progress at all (H p . p <= 0 at once cannot happen for this H; guard anyway):
+        # fall back to the preconditioned gradient.
+        return -gw / diag_w, -gb / diag_b
+    return sol_w, float(sol_b)
+
+
 def fit_linear_hinge(
-    X: np.ndarray,
+    X: np.ndarray | sp.spmatrix,
     y: np.ndarray,
     C: float,
     sample_weight: np.ndarray | None = None,
@@ -227,10 +328,11 @@ def fit_linear_hinge(
 ) -> LinearHingeResult:
     """Minimise the soft-margin primal with free intercept; stop at relative gap <= tol.
 
-    X is (n, d) float, y in {-1, +1}, sample_weight s_i >= 0 scales row i's C (class
-    weights). `init` is an optional (w, b) warm start. alpha in the result is the dual
-    point behind the gap certificate: C*s_i for rows with margin below 1 - h, 0 above
-    1 + h, fractional only for rows within the final smoothing width h of the margin.
+    X is (n, d) float, dense or scipy.sparse (used as CSR, never densified), y in {-1, +1},
+    sample_weight s_i >= 0 scales row i's C (class weights). `init` is an optional (w, b)
+    warm start. alpha in the result is the dual point behind the gap certificate: C*s_i for
+    rows with margin below 1 - h, 0 above 1 + h, fractional only for rows within the final
+    smoothing width h of the margin.
     `blas_threads` caps BLAS threads during the fit (None: leave as is). The passes are
     memory-bound matrix-vector products; one thread measured 5-7x faster than two on a
     busy 2-core machine (tests/benchmarks/solver_speed.py).
@@ -244,7 +346,7 @@ def fit_linear_hinge(
 
 
 def _fit_linear_hinge(
-    X: np.ndarray,
+    X: np.ndarray | sp.spmatrix,
     y: np.ndarray,
     C: float,
     sample_weight: np.ndarray | None,
@@ -266,7 +368,8 @@ def _fit_linear_hinge(
         w = np.asarray(init[0], dtype=np.float64).copy()
         b = float(init[1])
     h = float(smoothing)
-    m = y * (X @ w + b)
+    use_cg = sp.issparse(X) or d > CG_FEATURES
+    m = y * (np.asarray(X @ w).ravel() + b)
     history: list[tuple[int, float, float]] = []
     best: tuple[float, float, np.ndarray, float, np.ndarray, float] | None = None
     it = 0
@@ -307,21 +410,27 @@ def _fit_linear_hinge(
         gw = w - v
         gb = -float(ay.sum())
         band = np.abs(1.0 - m) < h
-        xb = X[band]
-        cb = cs[band] / (2.0 * h)
-        H = np.empty((d + 1, d + 1))
-        H[:d, :d] = (xb.T * cb) @ xb
-        H[:d, :d] += np.eye(d)
-        H[:d, d] = H[d, :d] = xb.T @ cb
         # A tiny ridge on b keeps H invertible when no row sits in the band.
-        H[d, d] = cb.sum() + 1e-10 * (1.0 + cs.sum())
-        g = np.append(gw, gb)
-        try:
-            step = -np.linalg.solve(H, g)
-        except np.linalg.LinAlgError:
-            step = -np.linalg.lstsq(H, g, rcond=None)[0]
-        dw, db = step[:d], float(step[d])
-        dm = y * (X @ dw + db)
+        ridge_b = 1e-10 * (1.0 + cs.sum())
+        if use_cg:
+            # Tighter steps as the certified gap closes (an Eisenstat-Walker-like forcing term).
+            forcing = min(CG_FORCING, float(np.sqrt(max(gap, 0.0))))
+            dw, db = _newton_step_cg(X, band, cs / (2.0 * h), gw, gb, ridge_b, forcing)
+        else:
+            xb = X[band]
+            cb = cs[band] / (2.0 * h)
+            H = np.empty((d + 1, d + 1))
+            H[:d, :d] = (xb.T * cb) @ xb
+            H[:d, :d] += np.eye(d)
+            H[:d, d] = H[d, :d] = xb.T @ cb
+            H[d, d] = cb.sum() + ridge_b
+            g = np.append(gw, gb)
+            try:
+                step = -np.linalg.solve(H, g)
+            except np.linalg.LinAlgError:
+                step = -np.linalg.lstsq(H, g, rcond=None)[0]
+            dw, db = step[:d], float(step[d])
+        dm = y * (np.asarray(X @ dw).ravel() + db)
         t = _line_search(w, dw, m, dm, cs, h)
         if t == 0.0:
             h *= 0.5
@@ -418,6 +527,11 @@ def fit_rbf_approx(
     """
     from sklearn.cluster import KMeans
 
+    if sp.issparse(X):
+        raise SettingsError(
+            "the approximate rbf fit needs dense features; sparse (text) features take the "
+            "linear kernel"
+        )
     X, y, s = _check_inputs(X, y, C, sample_weight)
     if not (np.isfinite(gamma) and gamma > 0):
         raise SettingsError(f"gamma must be a positive number, got {gamma!r}")

@@ -17,6 +17,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import scipy.sparse as sp
 
 from reviewer.core.values import OPEN, REVIEW_NAMES
 
@@ -178,7 +179,7 @@ def contour_segments(
 
 
 def boundary_in_projection(
-    model: Any, X: np.ndarray, coords: np.ndarray, *, grid: int = BOUNDARY_GRID
+    model: Any, X: np.ndarray | sp.spmatrix, coords: np.ndarray, *, grid: int = BOUNDARY_GRID
 ) -> Boundary:
     """f = 0 and f = +-1 of a two-class fit, drawn in the projection plane.
 
@@ -187,6 +188,10 @@ def boundary_in_projection(
     map is exact, so the lines are exact; for a linear model with more features the lines
     are the boundary within the projection plane through the data's centre, so points off
     that plane may sit on the other side. Other cases are not drawn, with a note saying why.
+
+    Sparse X (text features): for the linear kernel f on the plane is the least-squares fit
+    of f(x_i) = w.x_i + b on the projection, the same line as the dense route (A w, with A
+    the affine map) but without a grid x d block; other kernels are not drawn.
     """
     if model is None:
         return Boundary(
@@ -200,18 +205,29 @@ def boundary_in_projection(
             note=f"Boundary not drawn: the projection flattens {p} features, so a "
             f"{model.kernel} boundary has no exact place in it."
         )
-    n = len(X)
+    if sp.issparse(X) and p <= 2:
+        X = sp.csr_matrix(X).toarray()  # at most two columns: tiny
+    n = X.shape[0]
     rng = np.random.default_rng(0)
     sample = np.arange(n) if n <= 5000 else rng.choice(n, 5000, replace=False)
     Z1 = np.column_stack([coords[sample], np.ones(len(sample))])
-    A, *_ = np.linalg.lstsq(Z1, X[sample], rcond=None)
     lo, hi = coords.min(axis=0), coords.max(axis=0)
     pad = 0.05 * np.maximum(hi - lo, 1e-9)
     xs = np.linspace(lo[0] - pad[0], hi[0] + pad[0], grid)
     ys = np.linspace(lo[1] - pad[1], hi[1] + pad[1], grid)
     gx, gy = np.meshgrid(xs, ys)
-    G = np.column_stack([gx.ravel(), gy.ravel(), np.ones(gx.size)]) @ A
-    f = model.problems_[0].decision_function(G).reshape(gx.shape)
+    if sp.issparse(X):
+        problem = model.problems_[0]
+        if problem.w is None:
+            return Boundary(note="Boundary not drawn: it is drawn for the linear kernel only.")
+        wx = np.asarray(X[sample] @ problem.w).ravel()
+        Aw, *_ = np.linalg.lstsq(Z1, wx, rcond=None)
+        G3 = np.column_stack([gx.ravel(), gy.ravel(), np.ones(gx.size)])
+        f = (G3 @ Aw + problem.intercept).reshape(gx.shape)
+    else:
+        A, *_ = np.linalg.lstsq(Z1, X[sample], rcond=None)
+        G = np.column_stack([gx.ravel(), gy.ravel(), np.ones(gx.size)]) @ A
+        f = model.problems_[0].decision_function(G).reshape(gx.shape)
     segments = {lv: contour_segments(xs, ys, f, lv) for lv in (-1.0, 0.0, 1.0)}
     exact = p <= 2
     pos = str(model.classes_[1])
