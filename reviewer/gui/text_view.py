@@ -20,7 +20,6 @@ import pandas as pd
 from PySide6.QtCore import QEvent, Qt
 from PySide6.QtWidgets import (
     QGridLayout,
-    QLabel,
     QScrollArea,
     QTextBrowser,
     QToolTip,
@@ -33,9 +32,11 @@ from reviewer.gui.widgets import ElidedLabel
 
 # The default token rule of scikit-learn's TfidfVectorizer: runs of two or more word characters.
 TOKEN = re.compile(r"(?u)\b\w\w+\b")
+SHORT = "Marked: terms pushing towards {towards} over {against} (w_j x_j of the linear model)"
 HOW = (
     "Marked: the largest per-term contributions w_j x_j of the linear model to preferring "
-    "{towards} over {against} (bold on yellow: words and word pairs, stronger for larger "
+    "{towards} over {against}, computed as x_j (w_{towards},j - w_{against},j) from the fit's "
+    "one-against-the-rest weights (bold on yellow: words and word pairs, stronger for larger "
     "contributions; underlined: character n-grams). Hover a mark for its value."
 )
 
@@ -124,6 +125,15 @@ def marked_html(text: str, marks: Sequence[Mark], towards: str = "") -> str:
         out.append(chunk)
         i = j
     return "".join(out)
+
+
+class LegendLabel(ElidedLabel):
+    """One elided line whose tooltip is always the whole explanation."""
+
+    explanation = ""
+
+    def _sync_tooltip(self) -> None:
+        self.setToolTip(self.explanation or (self.text() if self.is_elided() else ""))
 
 
 class MarkedText(QTextBrowser):
@@ -229,17 +239,17 @@ class ReadingPart(QWidget):
         lay.setSpacing(2)
         self.text_title = ElidedLabel("Text")
         self.text = MarkedText()
-        self.legend = QLabel("")
+        # One line, so the text keeps the room; the whole explanation is in the tooltip.
+        self.legend = LegendLabel("")
         self.legend.setObjectName("hint")
-        self.legend.setWordWrap(True)
-        self.legend.setMinimumWidth(40)
         self.other_title = ElidedLabel("Not used by the model")
         self.other = ColumnValues()
+        self.explanation = ""
         lay.addWidget(self.text_title)
-        lay.addWidget(self.text, 3)
+        lay.addWidget(self.text, 1)
         lay.addWidget(self.legend)
         lay.addWidget(self.other_title)
-        lay.addWidget(self.other, 1)
+        lay.addWidget(self.other)
 
     def clear(self) -> None:
         self.show_row([], pd.DataFrame(), [])
@@ -257,22 +267,25 @@ class ReadingPart(QWidget):
         self.other.setVisible(bool(others))
         towards = str(terms.attrs.get("towards") or "")
         self.text.show_fields(fields, terms, towards)
+        against = terms.attrs.get("against") or "the rest"
         if not has_text:
-            self.legend.setText("")
+            short = full = ""
         elif terms.attrs.get("reason"):
-            self.legend.setText(f"No terms marked: {terms.attrs['reason']}.")
+            short = full = f"No terms marked: {terms.attrs['reason']}."
         elif not self.text.marks:
-            self.legend.setText(
+            short = full = (
                 "No terms marked: nothing in this text pushed the linear model towards "
                 f"{towards or 'its label'}."
             )
         else:
-            self.legend.setText(
-                HOW.format(towards=towards, against=terms.attrs.get("against") or "the rest")
-            )
-        self.text.setToolTip("")
-        self.legend.setToolTip(self.legend.text())
+            short = SHORT.format(towards=towards, against=against)
+            full = HOW.format(towards=towards, against=against)
+        self.explanation = self.legend.explanation = full
+        self.legend.setText(short)
         self.other.show_values(others)
+        # As tall as its lines (up to six), so the text keeps the rest.
+        line = self.other.fontMetrics().height() + 2
+        self.other.setMaximumHeight(line * min(len(others), 6) + 4)
         self.other_title.setToolTip(
             "Columns the fit leaves out, shown for reading:\n"
             + "\n".join(f"{c}: {why}" for c, _, why in others if why)

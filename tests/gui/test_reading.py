@@ -104,3 +104,14 @@ def test_row_panel_shows_every_ignored_column_without_widening(qtbot, tmp_path) 
         assert shown["cupper_note"].toolTip() == long_note
         assert panel.minimumSizeHint().width() < 900
         assert not panel.reading.text.isVisible()  # no text column here
+
+
+def test_the_legend_is_one_line_and_its_tooltip_says_how_marks_are_computed(qtbot) -> None:
+    part = ReadingPart()
+    qtbot.addWidget(part)
+    part.resize(260, 300)
+    part.show()
+    part.show_row([("description", "tap dripping")], _terms([("tap", "word", 0.4)]), [])
+    assert "\n" not in part.legend.text()
+    assert "x_j (w_plumbing,j - w_hvac,j)" in part.legend.toolTip()
+    assert part.legend.minimumSizeHint().width() < 100
