@@ -222,3 +222,27 @@ def test_a_vectors_file_chosen_in_the_dialog_reaches_the_open(qtbot, data, monke
     assert win.open_path(data)
     assert "vectors" not in seen[-1]
     win.close()
+
+
+def test_the_vectors_file_becomes_features_of_the_opened_session(qtbot, data, tmp_path):
+    import numpy as np
+
+    vectors = tmp_path / "lots.npy"
+    np.save(vectors, np.random.default_rng(0).normal(size=(1800, 4)))
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
+    qtbot.addWidget(win)
+
+    def choose():
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        dlg.vectors_edit.setText(str(vectors))
+        dlg.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+
+    QTimer.singleShot(200, choose)
+    assert win.open_path(data)
+    names = list(win.session.feature_names)
+    assert [n for n in names if n.startswith("vectors[")] == [f"vectors[{j}]" for j in range(4)]
+    win.close()
