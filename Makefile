@@ -40,7 +40,7 @@ bench-full: $(STAMP)
 	QT_QPA_PLATFORM=offscreen $(PY) -m tests.benchmarks.run_all --full
 
 screenshot: $(STAMP)
-	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png --views assets
+	QT_QPA_PLATFORM=offscreen $(PY) -m reviewer.gui.screenshot assets/screenshot.png --views assets --text assets/screenshot_text.png
 
 clean:
 	rm -rf $(VENV) .pytest_cache .ruff_cache .hypothesis

@@ -105,7 +105,12 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"margin-reviewer {__version__}")
     sub = parser.add_subparsers(dest="command", parser_class=_Parser)
 
-    sub.add_parser("demo", help="open the window on the bundled demo data")
+    p_demo = sub.add_parser("demo", help="open the window on the bundled demo data")
+    p_demo.add_argument(
+        "--text",
+        action="store_true",
+        help="the text demo: maintenance work orders routed to a trade by their description",
+    )
 
     p_open = sub.add_parser("open", help="open the window on a data file")
     p_open.add_argument("data", nargs="?", help="CSV, TSV, Parquet or Excel file")
@@ -488,6 +493,10 @@ def _window(args: argparse.Namespace) -> int:
         sys.stderr.write(f"error: the window cannot start ({exc})\n")
         return 2
     if args.command == "demo":
+        if args.text:
+            return run_window(
+                DEMO_DIR / "work_orders.csv", label="trade", id_column="order_id", demo=True
+            )
         return run_window(
             DEMO_DIR / "coffee_lots.csv", label="grade", id_column="lot_id", demo=True
         )

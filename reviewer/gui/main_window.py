@@ -378,12 +378,15 @@ class MainWindow(QMainWindow):
         """Open ``path``: the roles dialog first when no label is given. True when opened."""
         overrides: dict[str, str] | None = None
         sheet: str | None = None
+        vectors: Path | None = None
         if label is None:
             chosen = self.opener.ask_roles(Path(path))
             if chosen is None:
                 return False
-            label, id_column, overrides, sheet = chosen
-        return self.open_session(Path(path), label, id_column, session_path, overrides, sheet)
+            label, id_column, overrides, sheet, vectors = chosen
+        return self.open_session(
+            Path(path), label, id_column, session_path, overrides, sheet, vectors=vectors
+        )
 
     def open_session(
         self,
@@ -393,8 +396,12 @@ class MainWindow(QMainWindow):
         session_path: str | os.PathLike[str] | None = None,
         overrides: dict[str, str] | None = None,
         sheet: str | None = None,
+        *,
+        vectors: Path | None = None,
     ) -> bool:
-        session = self.opener.open(Path(path), label, id_column, session_path, overrides, sheet)
+        session = self.opener.open(
+            Path(path), label, id_column, session_path, overrides, sheet, vectors=vectors
+        )
         if session is None:
             return False
         self.set_session(session)

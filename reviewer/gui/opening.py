@@ -17,8 +17,8 @@ from reviewer.gui.roles_dialog import RolesDialog
 from reviewer.gui.tasks import TaskStrip, open_on_worker, preview_on_worker
 
 TABLE_FILTER = "Tables (*.csv *.tsv *.txt *.parquet *.xlsx *.xls);;All files (*)"
-Roles = tuple[str, str | None, dict[str, str], str | None]
-"""(label column, id column, kind overrides, workbook sheet)."""
+Roles = tuple[str, str | None, dict[str, str], str | None, Path | None]
+"""(label column, id column, kind overrides, workbook sheet, vectors file)."""
 
 
 class Opener:
@@ -85,7 +85,7 @@ class Opener:
         dlg = RolesDialog(preview, self.parent)
         if dlg.exec() != QDialog.DialogCode.Accepted:
             return None
-        return (*dlg.choices(), sheet)
+        return (*dlg.choices(), sheet, dlg.vectors())
 
     def open(
         self,
@@ -95,6 +95,7 @@ class Opener:
         session_path: str | os.PathLike[str] | None = None,
         overrides: dict[str, str] | None = None,
         sheet: str | None = None,
+        vectors: Path | None = None,
     ) -> ReviewSession | None:
         """The opened session, or None (reported, or the reviewer cancelled)."""
         kwargs: dict[str, Any] = dict(
@@ -104,6 +105,9 @@ class Opener:
             overrides=overrides,
             sheet=sheet,
         )
+        if vectors is not None:
+            # Passed only when chosen: a vectors file is an optional extra of the open.
+            kwargs["vectors"] = Path(vectors)
         try:
             return self._run(lambda: open_on_worker(self.strip, path, **kwargs))
         except SourceChangedError as exc:

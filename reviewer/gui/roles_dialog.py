@@ -3,6 +3,7 @@ other column is used, chosen over a preview of the first rows."""
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -11,10 +12,14 @@ from PySide6.QtWidgets import (
     QComboBox,
     QDialog,
     QDialogButtonBox,
+    QFileDialog,
     QFormLayout,
     QGridLayout,
     QGroupBox,
+    QHBoxLayout,
     QLabel,
+    QLineEdit,
+    QPushButton,
     QScrollArea,
     QTableView,
     QVBoxLayout,
@@ -25,6 +30,13 @@ from reviewer.core.door import KINDS, TablePreview
 from reviewer.gui.table_model import ArrayTableModel, ColumnSpec
 
 NO_ID = "(none: rows are matched by position)"
+KIND_TIPS = {
+    "numeric": "numbers, standardised",
+    "categorical": "a few levels, one indicator per level",
+    "text": "free text, as TF-IDF word and character n-gram features",
+    "vector": "one vector of numbers per row (an embedding), standardised",
+    "ignore": "left out of the fit; still shown in the row panel",
+}
 #: Widest a preview column starts (pixels); longer text elides, its tooltip shows it all.
 PREVIEW_MAX_WIDTH = 320
 
@@ -38,6 +50,10 @@ def _remembered_kinds(remembered: dict[str, Any] | None) -> dict[str, str]:
         kinds[col] = "categorical"
     for col in roles.get("ignored", {}):
         kinds[col] = "ignore"
+    # Session files that know the text and vector kinds list those columns too.
+    for kind in ("text", "vector"):
+        for col in roles.get(kind, []) or []:
+            kinds[col] = kind
     return kinds
 
 
@@ -54,8 +70,9 @@ class RolesDialog(QDialog):
 
         intro = QLabel(
             "Choose the column with the labels to review and, if there is one, the column "
-            "that names each row. Every other column is a feature: numeric, categorical, "
-            "or left out."
+            "that names each row. Every other column is a feature ("
+            + ", ".join(k for k in KINDS if k != "ignore")
+            + ") or left out (ignore)."
             + ("  Choices saved in this file's session are filled in." if remembered else "")
         )
         intro.setWordWrap(True)
@@ -97,6 +114,22 @@ class RolesDialog(QDialog):
             self.id_combo.setCurrentText(ident)
         form.addRow("Label column", self.label_combo)
         form.addRow("Row id column", self.id_combo)
+        # An optional .npy file of one vector per row (embeddings), matched by row order.
+        self.vectors_edit = QLineEdit()
+        self.vectors_edit.setObjectName("vectors_file")
+        self.vectors_edit.setPlaceholderText("optional: one vector per row, in row order")
+        self.vectors_edit.setClearButtonEnabled(True)
+        saved_vectors = remembered.get("vectors")
+        if isinstance(saved_vectors, str) and saved_vectors:
+            self.vectors_edit.setText(saved_vectors)
+        choose = QPushButton("Choose…")
+        choose.setObjectName("choose_vectors")
+        choose.clicked.connect(self._choose_vectors)
+        row = QHBoxLayout()
+        row.setContentsMargins(0, 0, 0, 0)
+        row.addWidget(self.vectors_edit, 1)
+        row.addWidget(choose)
+        form.addRow("Vectors file (.npy)", row)
         layout.addLayout(form)
 
         box = QGroupBox("Features")
@@ -108,6 +141,8 @@ class RolesDialog(QDialog):
             kind, reason = preview.kinds.get(col, ("ignore", ""))
             combo = QComboBox()
             combo.addItems(list(KINDS))
+            for j, k in enumerate(KINDS):
+                combo.setItemData(j, KIND_TIPS.get(k, ""), Qt.ItemDataRole.ToolTipRole)
             combo.setCurrentText(saved.get(col, kind))
             self.kind_combos[col] = combo
             name = QLabel(str(col))
@@ -135,6 +170,19 @@ class RolesDialog(QDialog):
         self.label_combo.currentTextChanged.connect(self._sync_enabled)
         self.id_combo.currentTextChanged.connect(self._sync_enabled)
         self._sync_enabled()
+
+    def _choose_vectors(self) -> None:
+        start = str(self.preview.source.path.parent)
+        path, _ = QFileDialog.getOpenFileName(
+            self, "Vectors file: one row per table row", start, "NumPy arrays (*.npy);;All (*)"
+        )
+        if path:
+            self.vectors_edit.setText(path)
+
+    def vectors(self) -> Path | None:
+        """The vectors file chosen, or None."""
+        text = self.vectors_edit.text().strip()
+        return Path(text).expanduser() if text else None
 
     def _sync_enabled(self) -> None:
         # The label and id columns are not features, so their kind choice does not apply.

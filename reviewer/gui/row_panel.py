@@ -1,11 +1,13 @@
-"""The current row in context: its fit values, its features beside its class's typical values,
-its nearest labelled neighbours and its own edit history. Everything comes from the session."""
+"""The current row in context: its fit values, its text with the telling terms marked and the
+columns the model leaves out, its features beside its class's typical values, its nearest
+labelled neighbours and its own edit history. Everything comes from the session."""
 
 from __future__ import annotations
 
 import math
 
 import numpy as np
+import pandas as pd
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (
@@ -26,6 +28,7 @@ from reviewer.core.values import REVIEW_NAMES, display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.table_model import SOURCE_ROW_ROLE, ArrayTableModel, ColumnSpec
+from reviewer.gui.text_view import ReadingPart
 from reviewer.gui.widgets import ElidedLabel
 
 _FIT_FIELDS = (
@@ -46,6 +49,18 @@ def _text(value: object) -> str:
     if isinstance(value, (float, np.floating)):
         return "–" if math.isnan(value) else f"{value:.3f}"
     return display_name(str(value))
+
+
+def _full_text(value: object) -> str:
+    """A cell as text, in full (no rounding); missing values as a dash."""
+    if value is None or (pd.api.types.is_scalar(value) and pd.isna(value)):
+        return "–"
+    return str(value)
+
+
+def _text_columns(s: ReviewSession) -> list[str]:
+    """The table's text feature columns (none when the roles have no text kind)."""
+    return [str(c) for c in getattr(s.roles, "text", []) or []]
 
 
 def _titled(title: str, body: QWidget) -> QWidget:
@@ -119,6 +134,10 @@ class RowPanel(QWidget):
         grid.setRowStretch(half, 1)
         self.split.addWidget(facts)
 
+        # The row's text in full (terms marked) and every column the model leaves out.
+        self.reading = ReadingPart()
+        self.split.addWidget(self.reading)
+
         self.features_model = ArrayTableModel()
         self.features = _small_table("features_table")
         self.features.setModel(self.features_model)
@@ -142,16 +161,22 @@ class RowPanel(QWidget):
         self.context_tabs.setTabToolTip(0, "Tinted: another label. Click one to go to it.")
         self.context_tabs.setTabToolTip(1, "Every decision and note on this row, newest last")
         self.split.addWidget(self.context_tabs)
-        for i, stretch in enumerate((2, 4, 4)):
+        for i, stretch in enumerate((2, 4, 4, 3)):
             self.split.setStretchFactor(i, stretch)
-        self.split.setSizes([250, 420, 430])
+        self._size_parts(has_text=False)
 
         bus.row_selected.connect(self.show_row)
 
     def set_session(self, session: ReviewSession | None) -> None:
         self.session = session
         self.row = None
+        self._size_parts(has_text=bool(session is not None and _text_columns(session)))
         self.refresh()
+
+    def _size_parts(self, *, has_text: bool) -> None:
+        # A table with text gives its reading part the most room; otherwise it holds a few
+        # short lines (the columns the model leaves out).
+        self.split.setSizes([220, 460, 330, 290] if has_text else [240, 200, 390, 370])
 
     def show_row(self, row: int) -> None:
         self.row = int(row)
@@ -166,6 +191,7 @@ class RowPanel(QWidget):
             self.features_model.set_columns([])
             self.neighbours_model.set_columns([])
             self.history.setPlainText("")
+            self.reading.clear()
             return
         # Without an id column the id is the row number: say it once.
         self.title.setText(
@@ -177,6 +203,7 @@ class RowPanel(QWidget):
         fit = s.latest.rows.iloc[row] if s.latest is not None else None
         for key, _ in _FIT_FIELDS:
             self.values[key].setText(_text(fit[key]) if fit is not None else "–")
+        self._show_reading(s, row)
         self._show_features(s, row)
         self._show_neighbours(s, row)
         lines = []
@@ -192,6 +219,18 @@ class RowPanel(QWidget):
             )
         self.history.setPlainText("\n".join(lines) or "No decisions yet.")
         self.context_tabs.setTabText(1, f"History ({len(lines)})" if lines else "History")
+
+    def _show_reading(self, s: ReviewSession, row: int) -> None:
+        frame = s.frame
+        text_cols = _text_columns(s)
+        fields = [(c, _full_text(frame[c].iloc[row])) for c in text_cols]
+        terms = s.term_contributions(row, k=12) if text_cols else pd.DataFrame()
+        others = [
+            (str(c), _full_text(frame[c].iloc[row]), str(s.roles.ignored[c]))
+            for c in frame.columns
+            if c in s.roles.ignored
+        ]
+        self.reading.show_row(fields, terms, others)
 
     def _show_features(self, s: ReviewSession, row: int) -> None:
         prof = s.feature_profile(row)

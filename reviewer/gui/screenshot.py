@@ -1,9 +1,12 @@
-"""``python -m reviewer.gui.screenshot OUT.png [--views FOLDER]``: the demo as a reviewer sees it.
+"""``python -m reviewer.gui.screenshot OUT.png [--views FOLDER] [--text TEXT.png]``: the demo
+as a reviewer sees it.
 
 The window at 1,366 x 768 (a common laptop screen) after its first fit, top row selected.
 With ``--views`` it then takes the model's label on the five worst rows, refits, computes
-the C curve and saves each plot view as ``view_<name>.png`` in FOLDER. Works on a copy of the
-demo file in a temporary folder, so no session file is left behind.
+the C curve and saves each plot view as ``view_<name>.png`` in FOLDER. With ``--text`` it
+also shows the text demo (the work orders) after a linear fit, the top row's description
+marked, and saves that window. Works on copies of the demo files in a temporary folder, so
+no session file is left behind.
 """
 
 from __future__ import annotations
@@ -17,11 +20,16 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import QEventLoop, QTimer
 
+from reviewer.core.values import FitSettings
 from reviewer.gui.app import demo_copy, make_app
 from reviewer.gui.main_window import MainWindow
 from reviewer.gui.reporting import MessageLog
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_data" / "coffee_lots.csv"
+TEXT_DEMO = Path(__file__).resolve().parents[1] / "demo_data" / "work_orders.csv"
+#: The text demo's fit: the linear kernel (the usual one for TF-IDF), three folds to keep the
+#: screenshot quick.
+TEXT_SETTINGS = FitSettings(kernel="linear", C=1.0, folds=3, solver="exact")
 SIZE = (1366, 768)
 VIEW_SIZE = (900, 620)
 VIEW_FILES = {
@@ -78,10 +86,28 @@ def save_views(window: MainWindow, folder: Path) -> list[Path]:
     return out
 
 
+def save_text_window(out: Path, folder: Path) -> Path:
+    """The text demo after a linear fit, its top row current, saved to ``out``."""
+    data = demo_copy(TEXT_DEMO, folder)
+    window = MainWindow(reporter=MessageLog(), remember_layout=False, auto_fit=False)
+    window.show()
+    window.resize(*SIZE)
+    window.open_session(data, "trade", "order_id")
+    window.refit(TEXT_SETTINGS)
+    if not _wait(_fitted(window), 900):
+        raise RuntimeError("the text demo's fit did not finish in time")
+    window.select_row(window.model.source_row(0))
+    _wait(lambda: False, 0.5)
+    window.grab().save(str(out))
+    window.close()
+    return out
+
+
 def main(argv: list[str]) -> int:
     parser = argparse.ArgumentParser(prog="python -m reviewer.gui.screenshot")
     parser.add_argument("out", type=Path)
     parser.add_argument("--views", type=Path, default=None, help="folder for view_*.png")
+    parser.add_argument("--text", type=Path, default=None, help="the text demo's window")
     args = parser.parse_args(argv)
     make_app()
     with tempfile.TemporaryDirectory() as tmp:
@@ -101,6 +127,8 @@ def main(argv: list[str]) -> int:
             for path in save_views(window, args.views):
                 print(path)
         window.close()
+        if args.text is not None:
+            print(save_text_window(args.text, Path(tmp) / "text"))
     return 0
 
 

@@ -8,6 +8,7 @@ seconds for a tenth of that.
 
 from __future__ import annotations
 
+import html
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -56,6 +57,9 @@ class ColumnSpec:
     formatter: Callable[[Any], str] | None = None
     missing_text: str = ""
     tooltip: str = ""
+    full_tooltip: bool = False
+    """Cell tooltips give the whole value (wrapped), not the display text: for long text
+    shown cut to one line."""
     _sort_cache: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False)
 
     @property
@@ -354,7 +358,12 @@ class ArrayTableModel(QAbstractTableModel):
             return int(self._order[index.row()])
         if role == _TOOLTIP:
             spec = self._columns[index.column()]
-            text = self._format(spec, spec.values[self._order[index.row()]])
+            value = spec.values[self._order[index.row()]]
+            if spec.full_tooltip and not _is_missing(spec, value):
+                # Rich text, so Qt wraps a long value instead of drawing one endless line.
+                body = html.escape(str(value)).replace("\n", "<br>")
+                return f"<qt><b>{html.escape(spec.header)}</b>: {body}</qt>"
+            text = self._format(spec, value)
             return f"{spec.header}: {text}" if text else None
         return None
 

@@ -4,6 +4,8 @@ which row is next) come from the door."""
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 import pandas as pd
 from PySide6.QtCore import QEvent, QObject, Qt
@@ -14,6 +16,7 @@ from PySide6.QtWidgets import (
     QHBoxLayout,
     QLabel,
     QLineEdit,
+    QMenu,
     QSizePolicy,
     QTableView,
     QVBoxLayout,
@@ -25,6 +28,7 @@ from reviewer.core.door import ReviewSession
 from reviewer.core.values import display_name
 from reviewer.gui import palette
 from reviewer.gui.bus import ReviewBus
+from reviewer.gui.dialogs import app_settings
 from reviewer.gui.table_model import SOURCE_ROW_ROLE, ArrayTableModel, ColumnSpec
 from reviewer.gui.widgets import ElidedLabel
 
@@ -33,6 +37,13 @@ FIT_KEYS = ("slack", "heldout_slack", "zone", "support", "model_label", "rank")
 TEXT_KEYS = ("zone", "support", "model_label")
 #: Widest a column starts (pixels): a long label or id elides instead of widening the window.
 MAX_COLUMN_WIDTH = 220
+#: Object columns with values longer than this show as text: one line, whole in the tooltip.
+MAX_COLUMN_CHARS = 40
+#: Keys of the table's own columns in the list start with this.
+DATA_PREFIX = "col:"
+#: Columns the chooser does not offer: without them the list cannot be read.
+FIXED_COLUMNS = ("rank", "id")
+CHOICE_KEY = "list/columns"
 
 # A symbol per review state, so the state reads without its tint (and on a selected row).
 STATE_SYMBOLS = {"open": "○", "confirmed": "✓", "relabelled": "✎", "excluded": "✕"}
@@ -40,6 +51,28 @@ STATE_SYMBOLS = {"open": "○", "confirmed": "✓", "relabelled": "✎", "exclud
 
 def review_text(name: object) -> str:
     return f"{STATE_SYMBOLS.get(str(name), '')} {name}".strip()
+
+
+def one_line(value: object) -> str:
+    """The first line of a text value, with "…" when more follows (the view elides it too)."""
+    text = str(value).strip()
+    first, _, rest = text.partition("\n")
+    return first + (" …" if rest.strip() else "")
+
+
+def _longest(values: np.ndarray, sample: int = 2000) -> int:
+    """Longest text among (a sample of) the values."""
+    step = max(1, len(values) // sample)
+    return max((len(v) for v in values[::step] if isinstance(v, str)), default=0)
+
+
+def _stored_choice() -> dict[str, bool]:
+    raw = app_settings().value(CHOICE_KEY, "")
+    try:
+        data = json.loads(str(raw)) if raw else {}
+    except ValueError:
+        return {}
+    return {str(k): bool(v) for k, v in data.items()} if isinstance(data, dict) else {}
 
 
 def _compact(combo: QComboBox, chars: int) -> None:
@@ -112,6 +145,12 @@ class TriageList(QWidget):
         self.table.setTextElideMode(Qt.TextElideMode.ElideRight)
         self.table.verticalHeader().setDefaultSectionSize(22)
         self.table.horizontalHeader().setHighlightSections(False)
+        # Right-click a column header to choose the columns (the View menu has it too).
+        header = self.table.horizontalHeader()
+        header.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        header.customContextMenuRequested.connect(self._header_menu)
+        header.setToolTip("Right-click to choose the columns")
+        self._default_shown: set[str] = set()
         self.table.selectionModel().currentChanged.connect(self._on_current_changed)
         lay.addWidget(self.table, 1)
 
@@ -227,13 +266,9 @@ class TriageList(QWidget):
             ColumnSpec("zone", "Zone", self.fit_column("zone"), formatter=display_name),
             ColumnSpec("support", "Support", self.fit_column("support"), formatter=display_name),
         ]
-        frame = s.frame
-        for i, col in enumerate(s.roles.features):
-            vals = frame[col].to_numpy()
-            if vals.dtype.kind not in "fiub":
-                vals = vals.astype(object)
-            specs.append(ColumnSpec(f"f{i}:{col}", str(col), vals, decimals=2))
+        specs.extend(self._data_columns(s))
         self.model.set_columns(specs)
+        self.apply_column_choice()
         self.model.sort_by("rank")
         self.table.horizontalHeader().setSortIndicator(0, Qt.SortOrder.AscendingOrder)
         self.style_rows()
@@ -241,6 +276,89 @@ class TriageList(QWidget):
         self.size_columns()
         self._sized_with_fit = s.latest is not None
         self.show_classes()
+
+    def _data_columns(self, s: ReviewSession) -> list[ColumnSpec]:
+        """Every column of the table but the id and label: the features first, then the
+        rest in table order. Text shows cut to one line, the whole value in the tooltip."""
+        frame = s.frame
+        features = [str(c) for c in s.roles.features]
+        text_cols = {str(c) for c in getattr(s.roles, "text", []) or []}
+        skip = {str(s.roles.label), str(s.roles.id)}
+        others = [str(c) for c in frame.columns if str(c) not in skip and str(c) not in features]
+        self._default_shown = {f"{DATA_PREFIX}{c}" for c in features}
+        specs = []
+        for col in [*features, *others]:
+            vals = frame[col].to_numpy()
+            if vals.dtype.kind not in "fiub":
+                vals = vals.astype(object)
+            is_text = col in text_cols or (
+                vals.dtype.kind == "O" and _longest(vals) > MAX_COLUMN_CHARS
+            )
+            specs.append(
+                ColumnSpec(
+                    f"{DATA_PREFIX}{col}",
+                    col,
+                    vals,
+                    decimals=2,
+                    formatter=one_line if is_text else None,
+                    full_tooltip=is_text,
+                    tooltip="" if col in features else "not used by the model",
+                )
+            )
+        return specs
+
+    # ---- column choice ---------------------------------------------------------------------
+    def chooser_menu(self) -> QMenu:
+        """A menu with a check box per column of the list (the rank and the id stay)."""
+        menu = QMenu("Columns", self)
+        menu.setObjectName("columns_menu")
+        for i in range(self.model.columnCount()):
+            key = self.model.column_key(i)
+            if key in FIXED_COLUMNS:
+                continue
+            spec = self.model.column_spec(key)
+            act = menu.addAction(spec.header)
+            act.setCheckable(True)
+            act.setChecked(not self.table.isColumnHidden(i))
+            if spec.tooltip:
+                act.setToolTip(spec.tooltip)
+            act.toggled.connect(lambda on, k=key: self.show_column(k, on))
+        menu.setToolTipsVisible(True)
+        return menu
+
+    def _header_menu(self, pos) -> None:
+        self.chooser_menu().exec(self.table.horizontalHeader().mapToGlobal(pos))
+
+    def shown_columns(self) -> list[str]:
+        """Keys of the columns the list shows, left to right."""
+        return [
+            self.model.column_key(i)
+            for i in range(self.model.columnCount())
+            if not self.table.isColumnHidden(i)
+        ]
+
+    def show_column(self, key: str, on: bool = True) -> None:
+        """Show or hide one column, and remember the choice for the next time."""
+        i = self.model.column_index(key)
+        self.table.setColumnHidden(i, not on)
+        if on and self.table.columnWidth(i) == 0:
+            self.table.resizeColumnToContents(i)
+        if on and self.table.columnWidth(i) > MAX_COLUMN_WIDTH:
+            self.table.setColumnWidth(i, MAX_COLUMN_WIDTH)
+        choice = _stored_choice()
+        choice[key] = bool(on)
+        store = app_settings()
+        store.setValue(CHOICE_KEY, json.dumps(choice))
+        store.sync()
+
+    def apply_column_choice(self) -> None:
+        """Features and the fit columns show by default, other table columns not; a choice
+        made before (any table with a column of that name) wins."""
+        choice = _stored_choice()
+        for i in range(self.model.columnCount()):
+            key = self.model.column_key(i)
+            default = not key.startswith(DATA_PREFIX) or key in self._default_shown
+            self.table.setColumnHidden(i, not choice.get(key, default))
 
     def size_columns(self) -> None:
         self.table.resizeColumnsToContents()

@@ -157,3 +157,92 @@ def test_a_workbook_asks_for_the_sheet_and_opens_it(qtbot, tmp_path, monkeypatch
     assert win.open_path(book)
     assert asked["items"] == ["Notes", "Lots"]
     assert win.session.loaded.source.sheet == "Lots" and win.session.n_rows == 150
+
+
+CONTRACT_KINDS = ("numeric", "categorical", "text", "vector", "ignore")
+
+
+def test_every_kind_is_offered_and_remembered_text_columns_come_back(qtbot, data, monkeypatch):
+    import reviewer.gui.roles_dialog as roles_dialog
+
+    # The kinds come from the door; pinned here to the five the roles know, so the dialog's
+    # side is checked whatever the core offers.
+    monkeypatch.setattr(roles_dialog, "KINDS", CONTRACT_KINDS)
+    preview = ReviewSession.preview(data)
+    preview.remembered = {
+        "label": "grade",
+        "id": "lot_id",
+        "roles": {"numeric": ["altitude_m"], "text": ["cupper_note"], "vector": []},
+    }
+    dlg = RolesDialog(preview)
+    qtbot.addWidget(dlg)
+    combo = dlg.kind_combos["cupper_note"]
+    assert [combo.itemText(i) for i in range(combo.count())] == list(CONTRACT_KINDS)
+    assert combo.currentText() == "text"
+    assert "TF-IDF" in combo.itemData(2, Qt.ItemDataRole.ToolTipRole)
+    dlg.kind_combos["harvest_date"].setCurrentText("vector")
+    _label, _ident, overrides = dlg.choices()
+    assert overrides["harvest_date"] == "vector"
+    # Kept as text: an override unless the guess already was text.
+    assert overrides.get("cupper_note", preview.kinds["cupper_note"][0]) == "text"
+
+
+def test_a_vectors_file_chosen_in_the_dialog_reaches_the_open(qtbot, data, monkeypatch, tmp_path):
+    import numpy as np
+
+    vectors = tmp_path / "lots.npy"
+    np.save(vectors, np.zeros((1800, 3)))
+    seen: list[dict] = []
+    real_open = ReviewSession.open
+
+    def spy(path, **kwargs):
+        seen.append(dict(kwargs))
+        kwargs.pop("vectors", None)  # the window's side only: what reaches the open
+        return real_open(path, **kwargs)
+
+    monkeypatch.setattr(ReviewSession, "open", staticmethod(spy))
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
+    qtbot.addWidget(win)
+
+    def choose(path: str):
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        dlg.vectors_edit.setText(path)
+        dlg.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+
+    QTimer.singleShot(200, lambda: choose(str(vectors)))
+    assert win.open_path(data)
+    assert seen[-1]["vectors"] == vectors
+    win.session.close()
+    # Left empty, no vectors argument is passed at all.
+    QTimer.singleShot(200, lambda: choose(""))
+    assert win.open_path(data)
+    assert "vectors" not in seen[-1]
+    win.close()
+
+
+def test_the_vectors_file_becomes_features_of_the_opened_session(qtbot, data, tmp_path):
+    import numpy as np
+
+    vectors = tmp_path / "lots.npy"
+    np.save(vectors, np.random.default_rng(0).normal(size=(1800, 4)))
+    win = MainWindow(auto_fit=False, reporter=MessageLog())
+    qtbot.addWidget(win)
+
+    def choose():
+        dlg = next(
+            w
+            for w in QApplication.topLevelWidgets()
+            if isinstance(w, RolesDialog) and w.isVisible()
+        )
+        dlg.vectors_edit.setText(str(vectors))
+        dlg.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+
+    QTimer.singleShot(200, choose)
+    assert win.open_path(data)
+    names = list(win.session.feature_names)
+    assert [n for n in names if n.startswith("vectors[")] == [f"vectors[{j}]" for j in range(4)]
+    win.close()

@@ -33,6 +33,7 @@ from reviewer.core.review.context import (
     projection_2d,
 )
 from reviewer.core.review.editlog import Event, LabelState
+from reviewer.core.review.explain import empty_contributions, term_contributions
 from reviewer.core.review.fits import FitJob, FitPair
 from reviewer.core.review.handover import export_session
 from reviewer.core.review.opening import (
@@ -558,6 +559,40 @@ class ReviewSession:
             use = np.array([v is not None for v in self.labels]) & ~self.excluded
             self._norms = class_norms(self.frame, self.roles, self.labels, use)
         return self._norms
+
+    def term_contributions(
+        self, row: int, k: int = 12, *, all_features: bool = False
+    ) -> pd.DataFrame:
+        """The terms that pushed ``row`` towards the latest fit's label, largest first.
+
+        For the linear kernel, feature j adds x_j (w_model,j - w_given,j) to the model's
+        preference for its label over the row's current label (one weight vector per class
+        against the rest; with two classes +-x_j w_j), or, when the two agree, to the label
+        against its best rival. Text features only, the k largest positive, unless
+        ``all_features``. See ``explain.term_contributions``; ``attrs["reason"]`` says why the
+        frame is empty (no fit in memory, a non-linear kernel).
+        """
+        fit = self.latest
+        model = None if fit is None else fit.model
+        if fit is None or model is None:
+            why = (
+                "no fit yet"
+                if fit is None
+                else "the fit was loaded from the session file; fit again"
+            )
+            return empty_contributions(f"no per-term contributions: {why}")
+        problems = model.problems_
+        return term_contributions(
+            self.X[row],
+            self.feature_names,
+            [p.w for p in problems],
+            [p.intercept for p in problems],
+            [str(c) for c in model.classes_],
+            None if self.labels[row] is None else str(self.labels[row]),
+            str(fit.rows["model_label"].to_numpy()[row]),
+            k,
+            all_features=all_features,
+        )
 
     def projection(self) -> tuple[np.ndarray, np.ndarray]:
         """(n, 2) principal-component coordinates of the feature space, and variance shares."""
