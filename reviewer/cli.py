@@ -497,17 +497,21 @@ def _window(args: argparse.Namespace) -> int:
             return run_window(
                 DEMO_DIR / "work_orders.csv", label="trade", id_column="order_id", demo=True
             )
+        from reviewer.demo_data import COFFEE_DEMO_ROLES
+
         return run_window(
-            DEMO_DIR / "coffee_lots.csv", label="grade", id_column="lot_id", demo=True
+            DEMO_DIR / "coffee_lots.csv",
+            label="grade",
+            id_column="lot_id",
+            demo=True,
+            overrides=dict(COFFEE_DEMO_ROLES),
         )
     if args.command == "open" and args.data:
-        # The window takes vectors= only when a vectors file is given.
-        extra: dict[str, Any] = {"vectors": Path(args.vectors)} if args.vectors else {}
         return run_window(
             Path(args.data),
             label=args.label,
             id_column=args.id_column,
             session=args.session,
-            **extra,
+            vectors=Path(args.vectors) if args.vectors else None,
         )
     return run_window(None)

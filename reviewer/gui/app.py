@@ -45,15 +45,25 @@ def build_window(
     id_column: str | None = None,
     session: str | None = None,
     demo: bool = False,
+    overrides: dict[str, str] | None = None,
+    vectors: Path | None = None,
 ) -> MainWindow:
-    """The window with ``path`` opened as asked (roles dialog when no label is given)."""
+    """The window with ``path`` opened as asked (roles dialog when no label is given);
+    ``overrides`` sets column kinds, ``vectors`` adds a .npy vectors file."""
     window = MainWindow()
     if path is not None:
         if demo:
             # The demo's copy lives in a per-user data folder; exports go where it started.
             window.export_folder = Path.cwd()
         path = demo_copy(Path(path)) if demo else Path(path)
-        window.open_path(path, label=label, id_column=id_column, session_path=session)
+        window.open_path(
+            path,
+            label=label,
+            id_column=id_column,
+            session_path=session,
+            overrides=overrides,
+            vectors=vectors,
+        )
     return window
 
 
@@ -64,6 +74,8 @@ def run_window(
     id_column: str | None = None,
     session: str | None = None,
     demo: bool = False,
+    overrides: dict[str, str] | None = None,
+    vectors: Path | None = None,
 ) -> int:
     """Open the review window and run until it closes; returns the exit code.
 
@@ -73,6 +85,14 @@ def run_window(
     if not isinstance(QApplication.instance(), QApplication):
         check_window_can_start()
     app = make_app()
-    window = build_window(path, label=label, id_column=id_column, session=session, demo=demo)
+    window = build_window(
+        path,
+        label=label,
+        id_column=id_column,
+        session=session,
+        demo=demo,
+        overrides=overrides,
+        vectors=vectors,
+    )
     window.show()
     return int(app.exec())

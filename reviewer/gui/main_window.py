@@ -374,11 +374,13 @@ class MainWindow(QMainWindow):
         label: str | None = None,
         id_column: str | None = None,
         session_path: str | os.PathLike[str] | None = None,
+        overrides: dict[str, str] | None = None,
+        vectors: Path | None = None,
     ) -> bool:
-        """Open ``path``: the roles dialog first when no label is given. True when opened."""
-        overrides: dict[str, str] | None = None
+        """Open ``path``: the roles dialog first when no label is given. True when opened.
+        ``overrides`` (column -> kind) and ``vectors`` (a .npy file) apply when ``label`` is
+        given; the roles dialog asks for them otherwise."""
         sheet: str | None = None
-        vectors: Path | None = None
         if label is None:
             chosen = self.opener.ask_roles(Path(path))
             if chosen is None:

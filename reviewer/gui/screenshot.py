@@ -21,6 +21,7 @@ import numpy as np
 from PySide6.QtCore import QEventLoop, QTimer
 
 from reviewer.core.values import FitSettings
+from reviewer.demo_data import COFFEE_DEMO_ROLES
 from reviewer.gui.app import demo_copy, make_app
 from reviewer.gui.main_window import MainWindow
 from reviewer.gui.reporting import MessageLog
@@ -115,7 +116,7 @@ def main(argv: list[str]) -> int:
         window = MainWindow(reporter=MessageLog(), remember_layout=False)
         window.show()
         window.resize(*SIZE)
-        window.open_session(data, "grade", "lot_id")
+        window.open_session(data, "grade", "lot_id", overrides=dict(COFFEE_DEMO_ROLES))
         if not _wait(_fitted(window), 300):
             sys.stderr.write("the first fit did not finish in time\n")
             return 1

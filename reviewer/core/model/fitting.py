@@ -111,6 +111,7 @@ def fit_margins(
     Xf = X if len(fit_rows) == n else X[fit_rows]  # every row fitted: no copy
     # Features as the solvers' cost counts them: d, or stored values per row when sparse.
     cost_d = engine.cost_features(X)
+    sparse = engine.is_sparse(X)
     if settings.kernel == "auto":
         kernels, narrowed = auto_kernels(X)
         if narrowed:
@@ -120,9 +121,14 @@ def fit_margins(
             c
             for c in RBF_CS
             if engine.predicted_scan_seconds(
-                len(fit_rows), cost_d, len(classes), "rbf", c, int(settings.folds)
+                len(fit_rows), cost_d, len(classes), "rbf", c, int(settings.folds), sparse=sparse
             )
             <= engine.SLOW_SCAN_SECONDS
+            # Sparse rows have no approximate rbf path: only C values solved exactly.
+            and not (
+                sparse
+                and engine.choose_solver(len(fit_rows), cost_d, "rbf", c, sparse=True) != "exact"
+            )
         )
         if "rbf" in kernels and len(rbf_cs) < len(RBF_CS):
             left_out = ", ".join(f"{c:g}" for c in RBF_CS if c not in rbf_cs)
@@ -133,6 +139,7 @@ def fit_margins(
         best, tried = choose_settings(
             Xf,
             fit_idx,
+            kernels=kernels,
             class_weight=settings.class_weight,
             seed=settings.seed,
             rbf_cs=rbf_cs,
@@ -169,7 +176,13 @@ def fit_margins(
 
     folds = int(resolved["folds"])
     expected = engine.predicted_scan_seconds(
-        len(fit_rows), cost_d, len(classes), resolved["kernel"], float(resolved["C"]), folds
+        len(fit_rows),
+        cost_d,
+        len(classes),
+        resolved["kernel"],
+        float(resolved["C"]),
+        folds,
+        sparse=sparse,
     )
     if expected > engine.SLOW_SCAN_SECONDS:
         slow = (
@@ -225,7 +238,13 @@ def fit_margins(
     F_held = None
     if folds:
         fold_seconds = expected - engine.predicted_scan_seconds(
-            len(fit_rows), cost_d, len(classes), resolved["kernel"], float(resolved["C"]), 0
+            len(fit_rows),
+            cost_d,
+            len(classes),
+            resolved["kernel"],
+            float(resolved["C"]),
+            0,
+            sparse=sparse,
         )
         held_fit, fold_notes = heldout_decision(
             Xf,

@@ -20,15 +20,21 @@ from reviewer.core.model.tuning import (
 from tests.reference.text_matrix import BINARY, THREE, tweet_tfidf
 
 
-def test_auto_on_text_tries_the_linear_kernel_only_and_says_so() -> None:
+def test_auto_on_text_keeps_rbf_only_while_an_exact_solve_is_affordable(monkeypatch) -> None:
     X, labels = tweet_tfidf(THREE, rows=240)
     _classes, y_idx = np.unique(labels, return_inverse=True)
     best, tried = choose_settings(X, y_idx)
-    assert best.kernel == "linear"
-    assert tried and {c.kernel for c in tried} == {"linear"}
     # Unit-length TF-IDF rows get the text C grid, not the one for standardised columns.
-    assert sorted(c.C for c in tried) == list(TEXT_LINEAR_CS)
+    assert sorted(c.C for c in tried if c.kernel == "linear") == list(TEXT_LINEAR_CS)
+    # 240 rows: an exact rbf solve is cheap, so rbf stays in the grid.
+    assert {c.kernel for c in tried} == {"linear", "rbf"}
+    assert auto_kernels(X) == (("linear", "rbf"), None)
+    # Past the exact budget (no approximate rbf on sparse rows): linear only, and it says so.
+    monkeypatch.setattr(engine, "EXACT_ROWS_ALWAYS", 10)
+    monkeypatch.setattr(engine, "RBF_EXACT_ROWS", 100)
     assert auto_kernels(X) == (("linear",), SPARSE_AUTO_NOTE)
+    best, tried = choose_settings(X, y_idx)
+    assert best.kernel == "linear" and {c.kernel for c in tried} == {"linear"}
     # Dense features keep the full grid and add no note.
     assert auto_kernels(X.toarray()) == (("linear", "rbf"), None)
 
