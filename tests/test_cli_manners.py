@@ -67,8 +67,8 @@ def test_summary_json_has_the_documented_keys(tmp_path: Path) -> None:
     doc = json.loads(summary.read_text())
     documented = {
         "data", "label", "id", "rows", "fitted", "unlabelled", "classes", "zones", "supports",
-        "settings", "heldout_accuracy", "heldout_balanced_accuracy", "columns", "notes", "out",
-        "seconds",
+        "settings", "heldout_accuracy", "heldout_balanced_accuracy", "columns", "vectors",
+        "features", "feature_nonzeros", "notes", "out", "seconds",
     }  # fmt: skip
     assert set(doc) == documented
     assert doc["rows"] == 1800 and sum(doc["zones"].values()) == 1800

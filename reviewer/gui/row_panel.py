@@ -74,10 +74,16 @@ def _titled(title: str, body: QWidget) -> QWidget:
 
 
 def _fit_columns(view: QTableView) -> None:
-    """Every column as wide as its header and values; the last one takes what is left."""
+    """Every column as wide as its header and values but the first shown one, which takes
+    what is left (and elides its text when that is too little)."""
     header = view.horizontalHeader()
+    shown = [i for i in range(header.count()) if not view.isColumnHidden(i)]
+    first = shown[0] if shown else 0
     for i in range(header.count()):
-        mode = QHeaderView.ResizeMode.Stretch if i == 0 else QHeaderView.ResizeMode.ResizeToContents
+        stretch = i == first
+        mode = (
+            QHeaderView.ResizeMode.Stretch if stretch else QHeaderView.ResizeMode.ResizeToContents
+        )
         header.setSectionResizeMode(i, mode)
 
 

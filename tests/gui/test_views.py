@@ -12,6 +12,7 @@ from reviewer.core.output.export import write_summary_html
 from reviewer.core.review import plotdata
 from reviewer.core.review.session import ReviewSession
 from reviewer.core.values import FitSettings
+from reviewer.demo_data import COFFEE_DEMO_ROLES
 from reviewer.gui.bus import ReviewBus
 from reviewer.gui.views import ViewsPanel, _fmt, render_views_png
 
@@ -22,7 +23,10 @@ DEMO = "reviewer/demo_data/coffee_lots.csv"
 def session(tmp_path_factory):
     folder = tmp_path_factory.mktemp("views")
     pd.read_csv(DEMO).head(300).to_csv(folder / "lots.csv", index=False)
-    s = ReviewSession.open(folder / "lots.csv", label="grade", id_column="lot_id")
+    # As the window's coffee demo opens it: the tasting note is read, not fitted.
+    s = ReviewSession.open(
+        folder / "lots.csv", label="grade", id_column="lot_id", overrides=COFFEE_DEMO_ROLES
+    )
     s.fit(FitSettings(kernel="rbf", C=10, folds=3))
     wrong = np.flatnonzero(s.latest.rows["zone"].to_numpy() == "wrong_side")
     s.take_model_label(wrong[:3])
