@@ -139,19 +139,7 @@ def cross_validate(
         m = margins_from_decision(model.training_decision(), model.y_idx_)
         wrong.append(int(np.sum(m < 0)))
         report((i + 1) / folds)
-    return Candidate(
-        kernel=kernel,
-        C=float(C),
-        gamma=float(gamma) if kernel != "linear" else None,
-        gamma_factor=None,
-        accuracy=float(np.mean(acc)),
-        balanced_accuracy=float(np.mean(bal)),
-        n_bound=float(np.mean(bound)),
-        n_wrong_side=float(np.mean(wrong)),
-        balanced_accuracy_se=float(np.std(bal, ddof=1) / np.sqrt(len(bal)))
-        if len(bal) > 1
-        else 0.0,
-    )
+    return _candidate(kernel, C, gamma, list(zip(acc, bal, bound, wrong, strict=True)))
 
 
 # A flexible kernel must beat the best linear candidate's cross-validated balanced accuracy by
