@@ -71,6 +71,10 @@ class ProjectionPlot(QWidget):
 
         self.plot_widget = pg.PlotWidget()
         self.plot = _white_plot(self.plot_widget)
+        # Component scores are plain numbers: no "(x0.001)" unit prefix beside the axis name
+        # (TF-IDF rows give scores of order 1e-3).
+        for side in ("left", "bottom"):
+            self.plot.getAxis(side).enableAutoSIPrefix(False)
         # One scatter item per style group (class x zone x decision), each with a single
         # brush, pen, symbol and size: pyqtgraph's fast path. Per-point styles in one item
         # cost ~25 s per million points in setData; a handful of uniform items cost ~1 s.
