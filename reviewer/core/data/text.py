@@ -97,7 +97,7 @@ class TextCounts:
 
     column: str
     tag: str  # "w" (word n-grams) or "c" (character n-grams)
-    counts: sparse.csr_matrix  # (rows, terms) float32 counts; terms in >= MIN_DF rows
+    counts: sparse.csr_matrix  # (rows, terms) counts (compact_counts); terms in >= MIN_DF rows
     terms: np.ndarray  # the terms, sorted as scikit-learn sorts its vocabulary
     max_features: int
     min_df: int = MIN_DF
@@ -116,7 +116,7 @@ class TextCounts:
         except ValueError:  # no term appears in two rows: this vectoriser adds nothing
             counts = sparse.csr_matrix((len(docs), 0), dtype=np.float32)
             terms = np.array([], dtype=object)
-        return cls(column, tag, counts, terms, cap)
+        return cls(column, tag, compact_counts(counts), terms, cap)
 
     def vocabulary(self, train: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
         """(kept term positions, their idf) learned from the ``train`` rows (all if None),
@@ -167,6 +167,22 @@ class TextCounts:
 
     def names(self, keep: np.ndarray) -> list[str]:
         return [f"{self.column}::{self.tag}:{t}" for t in self.terms[keep]]
+
+
+def compact_counts(counts: sparse.csr_matrix) -> sparse.csr_matrix:
+    """The counts in the smallest unsigned integer type that holds them exactly (uint8 for
+    rows of ordinary length, uint16 up to 65,535 repeats of a term in one cell), else as
+    they are (float32). A stored count then takes 1 or 2 bytes instead of 4: on a
+    200,000-row table of 50 words a row, 0.34 GB less held for the whole scan."""
+    if counts.nnz == 0:
+        return counts
+    top = float(counts.data.max())
+    for kind in (np.uint8, np.uint16):
+        if top <= np.iinfo(kind).max:
+            return sparse.csr_matrix(
+                (counts.data.astype(kind), counts.indices, counts.indptr), shape=counts.shape
+            )
+    return counts
 
 
 CHUNK_ROWS = 5_000

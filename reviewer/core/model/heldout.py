@@ -12,16 +12,39 @@ from collections.abc import Callable
 from typing import Any
 
 import numpy as np
+from scipy import sparse
 from sklearn.base import BaseEstimator, clone
 from sklearn.model_selection import StratifiedKFold
 
-from reviewer.core.model.parallel import run_tasks
+from reviewer.core.model.parallel import resolve_jobs, run_tasks
 from reviewer.core.progress import Reporter
 
 FoldFeatures = Callable[[np.ndarray, np.ndarray], tuple[Any, Any]]
 """(train, test) row positions -> (train matrix, test matrix), built from the train rows."""
 WarmStart = dict[int, tuple[np.ndarray, float]]
 """Class index -> (w, b) of the full fit's problem for that class (its starting point)."""
+
+SPARSE_FOLDS_MEMORY = 1_000_000_000
+"""Bytes that the matrices of the held-out folds running at once may take, for sparse
+(text) X; see fold_jobs."""
+
+
+def fold_jobs(X: Any, jobs: int | None) -> int:
+    """Threads for the held-out folds on this machine: ``jobs`` (None: every usable core),
+    but for a sparse X no more folds at once than fit in SPARSE_FOLDS_MEMORY.
+
+    A fold holds its own train and test matrices, together about X's size (8 bytes of value
+    and 4 of column index per stored value), and its solver works on them; two folds at
+    once hold two such copies. So a sparse X whose stored values take more than half of
+    SPARSE_FOLDS_MEMORY runs its folds one at a time: a 200,000-row text table of 50 words
+    a row (109 million stored values, 1.3 GB a fold) does, while a few thousand rows still
+    use every core (tests/benchmarks/results/text_memory.md). Dense folds are unchanged.
+    """
+    n_jobs = resolve_jobs(jobs)
+    if n_jobs == 1 or not sparse.issparse(X):
+        return n_jobs
+    fold_bytes = X.data.nbytes + X.indices.nbytes + X.indptr.nbytes
+    return max(1, min(n_jobs, SPARSE_FOLDS_MEMORY // max(fold_bytes, 1)))
 
 
 def effective_folds(y_idx: np.ndarray, folds: int) -> tuple[int, list[str]]:
@@ -69,9 +92,10 @@ def heldout_decision(
     fold's training rows alone; without it the fold uses rows of X.
 
     The folds are independent fits: ``jobs`` runs them on that many threads (``None``: every
-    usable core), ``cluster`` on a Dask scheduler's workers (see parallel.run_tasks); the
-    values are the same whichever. ``warm_start`` maps a class index to the (w, b) of the
-    full fit's problem for that class, the starting point of a fold's primal solve.
+    usable core; fewer for a large sparse X, see fold_jobs), ``cluster`` on a Dask
+    scheduler's workers (see parallel.run_tasks); the values are the same whichever.
+    ``warm_start`` maps a class index to the (w, b) of the full fit's problem for that
+    class, the starting point of a fold's primal solve.
     ``predicted_seconds`` (of all folds, serial) keeps a tiny problem on one thread.
 
     The loop is ours rather than cross_val_predict's so a long fit reports progress per fold,
@@ -101,7 +125,7 @@ def heldout_decision(
             report.cancel if cluster is None else None,
         ),
         [(train, test) for train, test in splits],
-        jobs=jobs,
+        jobs=fold_jobs(X, jobs) if cluster is None else jobs,
         cluster=cluster,
         predicted_seconds=predicted_seconds,
         report=report,
@@ -137,7 +161,9 @@ def fold_block(
     # Fit on class indices so a missing class maps back to the right column.
     init = warm_start if len(present) == n_classes else None
     model.fit(X_train, y_idx[train], report=Reporter(None, cancel), init=init)
+    del X_train  # the model keeps no reference: free it before scoring
     F = model.decision_matrix(X_test)
+    del X_test
     cols = model.classes_.astype(int)
     block = np.full((len(test), n_classes), np.nan)
     if len(cols) == 2 and n_classes > 2:

@@ -245,13 +245,21 @@ def _line_search(
 
 
 def _weighted_sq_colsum(xb: np.ndarray | sp.csr_matrix, c: np.ndarray) -> np.ndarray:
-    """sum_i c_i x_ij^2 per column j, without densifying a sparse xb or squaring all of a
-    dense one at once."""
-    if sp.issparse(xb):
-        sq = sp.csr_matrix(xb, copy=True)
-        np.square(sq.data, out=sq.data)
-        return np.asarray(sq.T @ c).ravel()
+    """sum_i c_i x_ij^2 per column j, without densifying a sparse xb or squaring all of
+    either at once (a squared copy of a sparse xb would be as large as xb)."""
     out = np.zeros(xb.shape[1])
+    if isinstance(xb, sp.csr_matrix):
+        ptr = xb.indptr
+        step = max(1, int(2**18 * xb.shape[0] / max(xb.nnz, 1)))  # ~260,000 values a slice
+        for start in range(0, xb.shape[0], step):
+            stop = min(start + step, xb.shape[0])
+            lo, hi = int(ptr[start]), int(ptr[stop])
+            if lo == hi:
+                continue
+            data = xb.data[lo:hi]
+            weights = np.repeat(c[start:stop], np.diff(ptr[start : stop + 1])) * data * data
+            out += np.bincount(xb.indices[lo:hi], weights=weights, minlength=xb.shape[1])
+        return out
     for start in range(0, xb.shape[0], 4096):
         part = xb[start : start + 4096]
         out += c[start : start + 4096] @ (part * part)
@@ -274,6 +282,7 @@ def _newton_step_cg(
     the Jacobi (diagonal) preconditioner is 1 + sum_i cb_i x_ij^2 and sum cb + ridge_b.
     """
     if band.mean() < 0.5:
+        # A copy of the band rows (under half of X): the Hessian products repeat over them.
         xb, cb = X[band], c_all[band]
     else:
         # Most rows are in the band: use X as it is, with zero weight outside the band.
@@ -281,7 +290,7 @@ def _newton_step_cg(
     diag_w = 1.0 + _weighted_sq_colsum(xb, cb)
     diag_b = float(cb.sum()) + ridge_b
 
-    xbt = xb.T  # built once: a sparse transpose is a new object each time
+    xbt = xb.T  # a CSR matrix's transpose is a CSC view of the same arrays (no copy)
 
     def hess(vw: np.ndarray, vb: float) -> tuple[np.ndarray, float]:
         u = np.asarray(xb @ vw).ravel() + vb
@@ -381,6 +390,7 @@ def _fit_linear_hinge(
         b = float(init[1])
     h = float(smoothing)
     use_cg = sp.issparse(X) or d > CG_FEATURES
+    sparse_x = sp.issparse(X)
     m = y * (np.asarray(X @ w).ravel() + b)
     history: list[tuple[int, float, float]] = []
     best: tuple[float, float, np.ndarray, float, np.ndarray, float] | None = None
@@ -391,7 +401,9 @@ def _fit_linear_hinge(
         alpha = _smoothed_alpha(m, cs, h)
         ay = alpha * y
         nz = alpha > 0
-        v = X[nz].T @ ay[nz] if nz.mean() < 0.5 else X.T @ ay
+        # On sparse X a pass over every row (zeros cost a multiply) rather than a copy of
+        # the rows with alpha > 0 (up to half of X).
+        v = X[nz].T @ ay[nz] if not sparse_x and nz.mean() < 0.5 else X.T @ ay
         # True certificate: primal of the hinge, dual of a feasible repair of alpha.
         a_feas = project_alpha_feasible(alpha, y, cs)
         diff = (a_feas - alpha) * y

@@ -6,6 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from scipy import sparse
 
 from reviewer.core.data import text
 from reviewer.core.data.dataset import prepare_dataset
@@ -94,6 +95,24 @@ def test_megabyte_cells_use_their_first_characters_with_a_note() -> None:
     col = data.feature_names.index("request::w:zyzzyva")
     # ...and the megabyte rows do not have it.
     assert set(data.X[:, col].nonzero()[0]) == {5, 7}
+
+
+def test_terms_repeated_past_a_byte_or_two_keep_scikit_learns_tfidf() -> None:
+    # Counts are stored in one byte while they fit, else two, else four: a term repeated
+    # 300 times in a cell and one repeated about 100,000 times must not wrap around.
+    frame = work_orders(40)
+    frame.loc[0, "request"] = "leak " * 300
+    frame.loc[1, "request"] = "a" * 99_999  # char 3-gram 'aaa' 99,997 times
+    frame.loc[2, "request"] = "aaaa leak"
+    data = prepare_dataset(table_from_frame(frame), label="trade")
+    docs = text.documents(frame["request"])
+    # Reference: scikit-learn's TfidfVectorizer with our documented settings.
+    blocks = [vec.fit_transform(docs) for _, vec in text.tfidf_vectorizers()]
+    expected = sparse.hstack(blocks, format="csr")
+    assert data.X.shape == expected.shape
+    assert abs(data.X - expected).max() < 1e-12
+    col = data.feature_names.index("request::c:aaa")
+    assert data.X[1, col] > 0.5  # most of the long cell's weight
 
 
 def test_roles_round_trip_and_older_role_dicts_still_load() -> None:

@@ -149,3 +149,33 @@ def test_a_malformed_cluster_address_is_refused_before_any_work(address: str) ->
 
 def test_the_default_is_every_usable_core() -> None:
     assert parallel.resolve_jobs(None) == parallel.usable_cores() >= 1
+
+
+def test_sparse_folds_over_the_memory_budget_run_one_at_a_time(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    from scipy import sparse
+
+    from reviewer.core.model import heldout
+
+    dense, y = _table(400)
+    X = sparse.csr_matrix(np.where(np.abs(dense) > 0.5, dense, 0.0))
+    where: dict[str, set] = {}
+
+    def builder(tag: str, train: np.ndarray, test: np.ndarray):
+        where.setdefault(tag, set()).add(threading.current_thread() is threading.main_thread())
+        return X[train], X[test]
+
+    est = SoftMarginClassifier(kernel="linear", C=1.0)
+    stored = X.data.nbytes + X.indices.nbytes + X.indptr.nbytes
+    monkeypatch.setattr(heldout, "SPARSE_FOLDS_MEMORY", 2 * stored)  # two folds fit
+    both, _ = heldout_decision(
+        X, y, 3, est, 4, seed=1, jobs=2, fold_features=functools.partial(builder, "two")
+    )
+    monkeypatch.setattr(heldout, "SPARSE_FOLDS_MEMORY", 2 * stored - 1)  # only one does
+    one, _ = heldout_decision(
+        X, y, 3, est, 4, seed=1, jobs=2, fold_features=functools.partial(builder, "one")
+    )
+    assert where == {"two": {False}, "one": {True}}  # worker threads, then the caller's
+    np.testing.assert_allclose(one, both, rtol=0, atol=1e-9)
+    assert heldout.fold_jobs(dense, 2) == 2  # dense folds keep every core asked for
