@@ -109,6 +109,10 @@ def load_vectors_file(path: str | os.PathLike[str], n_rows: int) -> tuple[np.nda
         raise InputError(f"{p}: vectors file not found")
     if p.is_dir():
         raise InputError(f"{p}: is a folder, not a .npy vectors file")
+    with open(p, "rb") as handle:
+        magic = handle.read(6)
+    if magic != b"\x93NUMPY":  # the .npy format's magic string (numpy's format spec)
+        raise InputError(f"{p}: not a .npy file (save one (rows, d) array with numpy.save)")
     try:
         arr = np.load(p, allow_pickle=False)
     except (ValueError, OSError, EOFError) as exc:
