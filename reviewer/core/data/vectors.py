@@ -7,13 +7,13 @@ fails with one message naming the column or file and the rows at fault.
 
 from __future__ import annotations
 
-import hashlib
 import os
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
+from reviewer.core.data.loading import sha256_of
 from reviewer.core.errors import InputError
 
 VECTORS_FILE_NAME = "vectors"
@@ -92,14 +92,6 @@ def _check_finite(arr: np.ndarray, what: str) -> None:
         )
 
 
-def file_sha256(path: str | os.PathLike[str]) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
-
-
 def load_vectors_file(path: str | os.PathLike[str], n_rows: int) -> tuple[np.ndarray, str]:
     """(vectors as (n_rows, d) float64, SHA-256 of the file) from a ``.npy`` file; one
     InputError naming the file for anything else (wrong shape or row count, not numbers,
@@ -137,7 +129,7 @@ def load_vectors_file(path: str | os.PathLike[str], n_rows: int) -> tuple[np.nda
         raise InputError(f"{p}: the vectors have no elements (shape {arr.shape})")
     arr = np.asarray(arr, dtype=np.float64)
     _check_finite(arr, str(p))
-    return arr, file_sha256(p)
+    return arr, sha256_of(p)
 
 
 def standardise(block: np.ndarray) -> np.ndarray:

@@ -257,7 +257,7 @@ def _resumed_vectors(
 ) -> dict[str, str] | None:
     """The vectors file a resumed session uses: the one given, else the one remembered,
     which must still be there with the same SHA-256."""
-    from reviewer.core.data.vectors import file_sha256
+    from reviewer.core.data.loading import sha256_of
 
     if given is not None:
         path = Path(given).expanduser().resolve()
@@ -266,7 +266,7 @@ def _resumed_vectors(
                 f"session {session} began without a vectors file; a session keeps its "
                 f"features: start a new session file (--session) to use {path}"
             )
-        if path.exists() and file_sha256(path) != remembered.get("sha256"):
+        if path.exists() and sha256_of(path) != remembered.get("sha256"):
             raise SourceChangedError(
                 f"vectors file {path} differs from the one session {session} began with "
                 f"({remembered.get('path')}, SHA-256 {str(remembered.get('sha256'))[:12]}...); "
@@ -281,7 +281,7 @@ def _resumed_vectors(
             f"session {session} uses the vectors file {path}, which is not there any more; "
             "put it back, or give its new place with --vectors"
         )
-    if file_sha256(path) != remembered.get("sha256"):
+    if sha256_of(path) != remembered.get("sha256"):
         raise SourceChangedError(
             f"vectors file {path} changed since session {session} began (SHA-256 differs); "
             "a session keeps its features: restore the file or start a new session file"
